@@ -1,0 +1,203 @@
+//! The circuit as the engine sees it: named nodes and parts with resolved parameters.
+//!
+//! A [`Circuit`] is built by [`crate::circuit_file`] from a file (or by code) and is already
+//! validated: every part has its pins and positive values. It holds no file positions; the
+//! file module keeps those for its own error messages.
+
+use crate::waveform::Waveform;
+
+/// Index of a node in [`Circuit::nodes`]; `0` is the reference node `gnd`.
+pub type NodeId = usize;
+
+/// The name of the reference node.
+pub const GROUND: &str = "gnd";
+
+/// Absolute temperature used by every junction model, kelvin.
+pub const TEMPERATURE_K: f64 = 300.0;
+
+/// Thermal voltage kT/q at [`TEMPERATURE_K`] with the exact SI constants, volts.
+pub const THERMAL_VOLTAGE: f64 = 1.380_649e-23 * TEMPERATURE_K / 1.602_176_634e-19;
+
+/// A validated circuit.
+#[derive(Clone, Debug)]
+pub struct Circuit {
+    /// A one-line description, from the file's `title`.
+    pub title: String,
+    /// Node names; index 0 is always `gnd`.
+    pub nodes: Vec<String>,
+    /// Parts in file order.
+    pub parts: Vec<Part>,
+    /// Named parameter sets declared in the file, for listings.
+    pub parameter_sets: Vec<ParameterSetInfo>,
+}
+
+/// A named, reusable parameter set as declared in the file.
+#[derive(Clone, Debug)]
+pub struct ParameterSetInfo {
+    /// Set name.
+    pub name: String,
+    /// Family of parts it applies to (`diode`, `led`, `switch`).
+    pub family: String,
+    /// Parameters written in the set, as (name, value in SI units).
+    pub values: Vec<(String, f64)>,
+    /// Parts that use the set.
+    pub used_by: Vec<String>,
+}
+
+/// One part: a name, its pins (in the order its kind defines) and what it is.
+#[derive(Clone, Debug)]
+pub struct Part {
+    /// Unique name.
+    pub name: String,
+    /// Node of each pin, in the kind's pin order (see [`PartSpec::pin_names`]).
+    pub pins: Vec<NodeId>,
+    /// Kind and parameters.
+    pub spec: PartSpec,
+}
+
+/// What a part is, with its parameters in SI units.
+#[derive(Clone, Debug)]
+pub enum PartSpec {
+    /// Linear resistor.
+    Resistor {
+        /// Ohms, positive.
+        resistance: f64,
+    },
+    /// Linear capacitor.
+    Capacitor {
+        /// Farads, positive.
+        capacitance: f64,
+        /// Voltage (pin a minus pin b) at the start of a run from rest, volts.
+        initial_voltage: Option<f64>,
+    },
+    /// Linear inductor with optional winding resistance.
+    Inductor {
+        /// Henries, positive.
+        inductance: f64,
+        /// Ohms in series, non-negative.
+        series_resistance: f64,
+        /// Current (a to b through the part) at the start of a run from rest, amperes.
+        initial_current: Option<f64>,
+    },
+    /// Two magnetically coupled windings with their resistances.
+    Transformer(TransformerParams),
+    /// Independent voltage source.
+    VoltageSource(Waveform),
+    /// Independent current source; the current flows through the part from `from` to `to`.
+    CurrentSource(Waveform),
+    /// Junction diode (also zener, also light-emitting diode after conversion).
+    Diode(DiodeParams),
+    /// Four diodes in a full-wave bridge.
+    Bridge(DiodeParams),
+    /// Voltage-controlled switch with hysteresis.
+    Switch(SwitchParams),
+}
+
+impl PartSpec {
+    /// The kind's name as written in circuit files.
+    pub fn kind_name(&self) -> &'static str {
+        match self {
+            PartSpec::Resistor { .. } => "resistor",
+            PartSpec::Capacitor { .. } => "capacitor",
+            PartSpec::Inductor { .. } => "inductor",
+            PartSpec::Transformer(_) => "transformer",
+            PartSpec::VoltageSource(_) => "voltage-source",
+            PartSpec::CurrentSource(_) => "current-source",
+            PartSpec::Diode(_) => "diode",
+            PartSpec::Bridge(_) => "bridge",
+            PartSpec::Switch(_) => "switch",
+        }
+    }
+
+    /// Pin names in order.
+    pub fn pin_names(&self) -> &'static [&'static str] {
+        pin_names_of(self.kind_name()).unwrap_or(&[])
+    }
+}
+
+/// Pin names of a part kind, in order, or `None` for an unknown kind.
+pub fn pin_names_of(kind: &str) -> Option<&'static [&'static str]> {
+    Some(match kind {
+        "resistor" | "capacitor" | "inductor" => &["a", "b"],
+        "transformer" => &["primary_a", "primary_b", "secondary_a", "secondary_b"],
+        "voltage-source" => &["plus", "minus"],
+        "current-source" => &["from", "to"],
+        "diode" | "led" => &["anode", "cathode"],
+        "bridge" => &["ac_a", "ac_b", "dc_plus", "dc_minus"],
+        "switch" => &["a", "b", "control_plus", "control_minus"],
+        _ => return None,
+    })
+}
+
+/// Coupled windings: primary between pins 0-1, secondary between pins 2-3; the `_a` pins
+/// are in phase.
+#[derive(Clone, Debug, PartialEq)]
+pub struct TransformerParams {
+    /// Primary self-inductance, henries.
+    pub primary_inductance: f64,
+    /// Primary winding resistance, ohms.
+    pub primary_resistance: f64,
+    /// Secondary self-inductance, henries.
+    pub secondary_inductance: f64,
+    /// Secondary winding resistance, ohms.
+    pub secondary_resistance: f64,
+    /// Coupling coefficient k, 0 < k < 1; mutual inductance k sqrt(L1 L2).
+    pub coupling: f64,
+}
+
+/// Junction diode parameters (Shockley law with series resistance and breakdown).
+#[derive(Clone, Debug, PartialEq)]
+pub struct DiodeParams {
+    /// Saturation current Is, amperes.
+    pub saturation_current: f64,
+    /// Emission coefficient n.
+    pub emission_coefficient: f64,
+    /// Series resistance, ohms.
+    pub series_resistance: f64,
+    /// Reverse breakdown: the reverse voltage at which `breakdown_current` flows.
+    pub breakdown: Option<Breakdown>,
+}
+
+/// Reverse breakdown of a junction.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Breakdown {
+    /// Reverse voltage (positive number) at `current`, volts.
+    pub voltage: f64,
+    /// Reverse current at `voltage`, amperes.
+    pub current: f64,
+    /// Dynamic (slope) resistance at `current`, ohms, from the junction alone.
+    pub slope_resistance: f64,
+}
+
+/// Voltage-controlled switch parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SwitchParams {
+    /// The switch closes when the control voltage rises through this, volts.
+    pub on_voltage: f64,
+    /// The switch opens when the control voltage falls through this, volts.
+    pub off_voltage: f64,
+    /// Closed resistance, ohms.
+    pub on_resistance: f64,
+    /// Open resistance, ohms.
+    pub off_resistance: f64,
+}
+
+impl Circuit {
+    /// Node index by name.
+    pub fn node(&self, name: &str) -> Option<NodeId> {
+        self.nodes.iter().position(|n| n == name)
+    }
+
+    /// Part index by name.
+    pub fn part(&self, name: &str) -> Option<usize> {
+        self.parts.iter().position(|p| p.name == name)
+    }
+
+    /// The fundamental frequency of the first sine source, if any (the mains).
+    pub fn mains_frequency_hz(&self) -> Option<f64> {
+        self.parts.iter().find_map(|p| match &p.spec {
+            PartSpec::VoltageSource(w) | PartSpec::CurrentSource(w) => w.frequency_hz(),
+            _ => None,
+        })
+    }
+}

@@ -1,0 +1,400 @@
+//! Device models: what each part adds to the modified-nodal-analysis system.
+//!
+//! Devices are a closed enum with `match` dispatch. Each holds its parameters and the
+//! indices of the unknowns it touches (resolved once when the circuit is compiled); per
+//! Newton iteration it adds numbers into the matrix and right-hand side ("stamps") from the
+//! present guess, its committed integration history and its discrete mode. Devices never
+//! own the matrix and never choose the step.
+//!
+//! Index 0 of the unknown vector is the reference node: it is kept in the vectors so that
+//! stamping needs no branches, and the solver ignores row and column 0.
+
+mod diode;
+mod passive;
+mod sources;
+mod switch;
+
+pub(crate) use diode::Junction;
+pub(crate) use passive::Windings;
+
+use crate::waveform::Waveform;
+
+/// How time derivatives are discretised for one solve.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Method {
+    /// Operating point: capacitors open, inductors shorted (through their resistance).
+    OperatingPoint,
+    /// Backward Euler: first order, L-stable, used right after a breakpoint.
+    BackwardEuler,
+    /// Trapezoidal rule: second order, used everywhere else.
+    Trapezoidal,
+}
+
+/// Everything a device needs to know about the solve in progress.
+#[derive(Clone, Copy, Debug)]
+pub(crate) struct SolveContext {
+    /// Time at the end of the step (the instant being solved for), seconds.
+    pub time: f64,
+    /// Step length, seconds (unused for the operating point).
+    pub h: f64,
+    /// Integration method.
+    pub method: Method,
+    /// Multiplier on every independent source (source stepping), 1 in normal runs.
+    pub source_scale: f64,
+    /// Conductance added across every junction, siemens.
+    pub gmin: f64,
+    /// Conductance from every node to the reference, siemens (raised in gmin stepping).
+    pub shunt: f64,
+}
+
+/// The matrix and right-hand side being assembled, `dim` x `dim`, row-major.
+pub(crate) struct Mna<'a> {
+    pub dim: usize,
+    pub a: &'a mut [f64],
+    pub b: &'a mut [f64],
+}
+
+impl Mna<'_> {
+    #[inline]
+    pub fn add(&mut self, row: usize, col: usize, value: f64) {
+        self.a[row * self.dim + col] += value;
+    }
+
+    /// A conductance `g` between nodes `p` and `n`.
+    #[inline]
+    pub fn conductance(&mut self, p: usize, n: usize, g: f64) {
+        self.add(p, p, g);
+        self.add(n, n, g);
+        self.add(p, n, -g);
+        self.add(n, p, -g);
+    }
+
+    /// A fixed current `i` flowing through an element from node `p` to node `n`.
+    #[inline]
+    pub fn current(&mut self, p: usize, n: usize, i: f64) {
+        self.b[p] -= i;
+        self.b[n] += i;
+    }
+
+    /// The incidence of branch current unknown `branch` flowing from `p` to `n`.
+    #[inline]
+    pub fn branch_incidence(&mut self, p: usize, n: usize, branch: usize) {
+        self.add(p, branch, 1.0);
+        self.add(n, branch, -1.0);
+        self.add(branch, p, 1.0);
+        self.add(branch, n, -1.0);
+    }
+}
+
+/// The discrete state of a device that has one.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Mode {
+    /// The device has no discrete state.
+    Continuous,
+    /// A voltage-controlled switch.
+    Switch {
+        /// Whether it is closed.
+        closed: bool,
+    },
+}
+
+/// A compiled device.
+#[derive(Clone, Debug)]
+pub(crate) enum Device {
+    Resistor {
+        a: usize,
+        b: usize,
+        g: f64,
+    },
+    Capacitor {
+        a: usize,
+        b: usize,
+        capacitance: f64,
+        initial_voltage: f64,
+        /// History slots: [voltage, current].
+        hist: usize,
+    },
+    /// One inductor or a set of coupled windings.
+    Windings(Windings),
+    VoltageSource {
+        p: usize,
+        n: usize,
+        branch: usize,
+        waveform: Waveform,
+    },
+    CurrentSource {
+        from: usize,
+        to: usize,
+        waveform: Waveform,
+    },
+    Diode {
+        /// Anode pin node.
+        anode: usize,
+        /// Junction anode: an internal node when there is series resistance.
+        inner: usize,
+        cathode: usize,
+        /// Series conductance (0 when `inner == anode`).
+        series_g: f64,
+        junction: Junction,
+        /// Newton scratch slots: [limited voltage, conductance, equivalent current, limited flag].
+        scratch: usize,
+    },
+    Switch {
+        a: usize,
+        b: usize,
+        control_p: usize,
+        control_n: usize,
+        on_voltage: f64,
+        off_voltage: f64,
+        on_g: f64,
+        off_g: f64,
+    },
+}
+
+/// Newton scratch slots a diode uses.
+pub(crate) const DIODE_SCRATCH: usize = 4;
+
+impl Device {
+    /// Adds this device's linearised contribution at the guess `x`.
+    #[inline]
+    pub fn stamp(
+        &self,
+        m: &mut Mna<'_>,
+        ctx: &SolveContext,
+        x: &[f64],
+        hist: &[f64],
+        mode: Mode,
+        scratch: &mut [f64],
+    ) {
+        match self {
+            Device::Resistor { a, b, g } => m.conductance(*a, *b, *g),
+            Device::Capacitor {
+                a,
+                b,
+                capacitance,
+                hist: h,
+                ..
+            } => passive::stamp_capacitor(m, ctx, *a, *b, *capacitance, &hist[*h..*h + 2]),
+            Device::Windings(w) => w.stamp(m, ctx, hist),
+            Device::VoltageSource {
+                p,
+                n,
+                branch,
+                waveform,
+            } => sources::stamp_voltage(m, ctx, *p, *n, *branch, waveform),
+            Device::CurrentSource { from, to, waveform } => {
+                m.current(*from, *to, ctx.source_scale * waveform.value(ctx.time));
+            }
+            Device::Diode {
+                anode,
+                inner,
+                cathode,
+                series_g,
+                junction,
+                scratch: s,
+            } => {
+                if *series_g > 0.0 {
+                    m.conductance(*anode, *inner, *series_g);
+                }
+                junction.stamp(
+                    m,
+                    ctx,
+                    *inner,
+                    *cathode,
+                    x,
+                    &mut scratch[*s..*s + DIODE_SCRATCH],
+                );
+            }
+            Device::Switch {
+                a, b, on_g, off_g, ..
+            } => {
+                let closed = matches!(mode, Mode::Switch { closed: true });
+                m.conductance(*a, *b, if closed { *on_g } else { *off_g });
+            }
+        }
+    }
+
+    /// Whether the device's characteristic depends on the solution.
+    pub fn is_nonlinear(&self) -> bool {
+        matches!(self, Device::Diode { .. })
+    }
+
+    /// Prepares Newton scratch from the starting guess.
+    pub fn begin_newton(&self, x: &[f64], scratch: &mut [f64]) {
+        if let Device::Diode {
+            inner,
+            cathode,
+            scratch: s,
+            ..
+        } = self
+        {
+            scratch[*s] = x[*inner] - x[*cathode];
+        }
+    }
+
+    /// Whether the linearisation used in the last iteration agrees with the device's own
+    /// characteristic at the new solution `x`.
+    pub fn converged(
+        &self,
+        x: &[f64],
+        scratch: &[f64],
+        gmin: f64,
+        reltol: f64,
+        abstol: f64,
+    ) -> bool {
+        match self {
+            Device::Diode {
+                inner,
+                cathode,
+                junction,
+                scratch: s,
+                ..
+            } => junction.converged(
+                x[*inner] - x[*cathode],
+                &scratch[*s..*s + DIODE_SCRATCH],
+                gmin,
+                reltol,
+                abstol,
+            ),
+            _ => true,
+        }
+    }
+
+    /// Updates the integration history after a step is accepted (`x` is the new solution).
+    pub fn commit(&self, ctx: &SolveContext, x: &[f64], hist: &mut [f64]) {
+        match self {
+            Device::Capacitor {
+                a,
+                b,
+                capacitance,
+                hist: h,
+                ..
+            } => passive::commit_capacitor(ctx, x[*a] - x[*b], *capacitance, &mut hist[*h..*h + 2]),
+            Device::Windings(w) => w.commit(ctx, x, hist),
+            _ => {}
+        }
+    }
+
+    /// Sets the integration history for a run starting from rest: capacitors at their
+    /// initial voltage, inductors at their initial current, nothing flowing.
+    pub fn rest_history(&self, hist: &mut [f64]) {
+        match self {
+            Device::Capacitor {
+                initial_voltage,
+                hist: h,
+                ..
+            } => {
+                hist[*h] = *initial_voltage;
+                hist[*h + 1] = 0.0;
+            }
+            Device::Windings(w) => w.rest_history(hist),
+            _ => {}
+        }
+    }
+
+    /// Sets the integration history consistent with an operating point `x`.
+    pub fn steady_history(&self, x: &[f64], hist: &mut [f64]) {
+        match self {
+            Device::Capacitor { a, b, hist: h, .. } => {
+                hist[*h] = x[*a] - x[*b];
+                hist[*h + 1] = 0.0;
+            }
+            Device::Windings(w) => w.steady_history(x, hist),
+            _ => {}
+        }
+    }
+
+    /// The next instant after `t` where this device's excitation is not smooth.
+    pub fn next_breakpoint(&self, t: f64) -> f64 {
+        match self {
+            Device::VoltageSource { waveform, .. } | Device::CurrentSource { waveform, .. } => {
+                waveform.next_breakpoint(t)
+            }
+            _ => f64::INFINITY,
+        }
+    }
+
+    /// The mode a device starts in.
+    pub fn initial_mode(&self) -> Mode {
+        match self {
+            Device::Switch { .. } => Mode::Switch { closed: false },
+            _ => Mode::Continuous,
+        }
+    }
+
+    /// The crossing function of a device with a discrete state: it changes state when this
+    /// becomes positive. `None` for devices without one.
+    #[inline]
+    pub fn crossing(&self, x: &[f64], mode: Mode) -> Option<f64> {
+        match (self, mode) {
+            (
+                Device::Switch {
+                    control_p,
+                    control_n,
+                    on_voltage,
+                    off_voltage,
+                    ..
+                },
+                Mode::Switch { closed },
+            ) => Some(switch::crossing(
+                x[*control_p] - x[*control_n],
+                closed,
+                *on_voltage,
+                *off_voltage,
+            )),
+            _ => None,
+        }
+    }
+
+    /// Applies the state change announced by a positive crossing function.
+    pub fn cross(&self, mode: &mut Mode) -> Option<crate::engine::EventKind> {
+        match mode {
+            Mode::Switch { closed } => {
+                *closed = !*closed;
+                Some(if *closed {
+                    crate::engine::EventKind::SwitchClosed
+                } else {
+                    crate::engine::EventKind::SwitchOpened
+                })
+            }
+            Mode::Continuous => None,
+        }
+    }
+
+    /// Current through the device from its first to its second terminal, amperes.
+    pub fn current(&self, time: f64, x: &[f64], hist: &[f64], mode: Mode) -> f64 {
+        match self {
+            Device::Resistor { a, b, g } => (x[*a] - x[*b]) * g,
+            Device::Capacitor { hist: h, .. } => hist[*h + 1],
+            Device::Windings(w) => x[w.branch[0]],
+            Device::VoltageSource { branch, .. } => x[*branch],
+            Device::CurrentSource { waveform, .. } => waveform.value(time),
+            Device::Diode {
+                inner,
+                cathode,
+                junction,
+                ..
+            } => junction.current(x[*inner] - x[*cathode]).0,
+            Device::Switch {
+                a, b, on_g, off_g, ..
+            } => {
+                let closed = matches!(mode, Mode::Switch { closed: true });
+                (x[*a] - x[*b]) * if closed { *on_g } else { *off_g }
+            }
+        }
+    }
+
+    /// Quantities whose local truncation error controls the step: (first index, second
+    /// index, is a current). A voltage is `x[first] - x[second]`; a current is `x[first]`.
+    pub fn error_probes(&self, out: &mut Vec<(usize, usize, bool)>) {
+        match self {
+            Device::Capacitor { a, b, .. } => out.push((*a, *b, false)),
+            Device::Windings(w) => {
+                for &branch in &w.branch[..w.count] {
+                    out.push((branch, 0, true));
+                }
+            }
+            _ => {}
+        }
+    }
+}

@@ -1,0 +1,283 @@
+//! Compiling a [`Circuit`] into the engine's form: unknowns, devices and their slots.
+
+use crate::circuit::{Circuit, PartSpec};
+use crate::devices::{Device, Junction, Mode, Windings, DIODE_SCRATCH};
+
+/// What an unknown of the system is.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum UnknownKind {
+    /// A node voltage (index into the circuit's nodes).
+    Node(usize),
+    /// A branch current of a part.
+    Branch {
+        /// Index of the part.
+        part: usize,
+    },
+    /// An internal node of a part (e.g. behind a diode's series resistance).
+    Internal {
+        /// Index of the part.
+        part: usize,
+    },
+}
+
+/// The circuit compiled for simulation. Immutable during a run.
+#[derive(Clone, Debug)]
+pub struct Network {
+    pub(crate) circuit: Circuit,
+    pub(crate) devices: Vec<Device>,
+    /// Originating part of each device.
+    pub(crate) device_part: Vec<usize>,
+    /// For each part: its devices with the sign of their current into the part's first pin.
+    pub(crate) part_devices: Vec<Vec<(usize, f64)>>,
+    /// Names and kinds of the unknowns; index 0 is the reference node.
+    pub(crate) unknowns: Vec<(String, UnknownKind)>,
+    pub(crate) history_len: usize,
+    pub(crate) scratch_len: usize,
+    /// Quantities whose local truncation error controls the step.
+    pub(crate) error_probes: Vec<(usize, usize, bool)>,
+    /// Devices with a discrete state.
+    pub(crate) discrete_devices: Vec<usize>,
+    pub(crate) nonlinear: bool,
+}
+
+impl Network {
+    /// Compiles a validated circuit.
+    pub fn new(circuit: &Circuit) -> Self {
+        let mut unknowns: Vec<(String, UnknownKind)> = circuit
+            .nodes
+            .iter()
+            .enumerate()
+            .map(|(i, n)| (n.clone(), UnknownKind::Node(i)))
+            .collect();
+        let mut devices = Vec::new();
+        let mut device_part = Vec::new();
+        let mut part_devices = Vec::new();
+        let mut history_len = 0;
+        let mut scratch_len = 0;
+
+        let new_unknown = |unknowns: &mut Vec<(String, UnknownKind)>, name: String, kind| {
+            unknowns.push((name, kind));
+            unknowns.len() - 1
+        };
+
+        for (pi, part) in circuit.parts.iter().enumerate() {
+            let pins = &part.pins;
+            let mut own = Vec::new();
+            let mut push = |devices: &mut Vec<Device>, d: Device, sign: f64| {
+                own.push((devices.len(), sign));
+                devices.push(d);
+                device_part.push(pi);
+            };
+            match &part.spec {
+                PartSpec::Resistor { resistance } => push(
+                    &mut devices,
+                    Device::Resistor {
+                        a: pins[0],
+                        b: pins[1],
+                        g: 1.0 / resistance,
+                    },
+                    1.0,
+                ),
+                PartSpec::Capacitor {
+                    capacitance,
+                    initial_voltage,
+                } => {
+                    push(
+                        &mut devices,
+                        Device::Capacitor {
+                            a: pins[0],
+                            b: pins[1],
+                            capacitance: *capacitance,
+                            initial_voltage: initial_voltage.unwrap_or(0.0),
+                            hist: history_len,
+                        },
+                        1.0,
+                    );
+                    history_len += 2;
+                }
+                PartSpec::Inductor {
+                    inductance,
+                    series_resistance,
+                    initial_current,
+                } => {
+                    let branch = new_unknown(
+                        &mut unknowns,
+                        format!("i({})", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    push(
+                        &mut devices,
+                        Device::Windings(Windings {
+                            count: 1,
+                            pins: [(pins[0], pins[1]), (0, 0)],
+                            branch: [branch, 0],
+                            inductance: [[*inductance, 0.0], [0.0, 0.0]],
+                            resistance: [*series_resistance, 0.0],
+                            initial_current: [initial_current.unwrap_or(0.0), 0.0],
+                            hist: history_len,
+                        }),
+                        1.0,
+                    );
+                    history_len += 2;
+                }
+                PartSpec::Transformer(t) => {
+                    let b1 = new_unknown(
+                        &mut unknowns,
+                        format!("i({}.primary)", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    let b2 = new_unknown(
+                        &mut unknowns,
+                        format!("i({}.secondary)", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    let m = t.coupling * (t.primary_inductance * t.secondary_inductance).sqrt();
+                    push(
+                        &mut devices,
+                        Device::Windings(Windings {
+                            count: 2,
+                            pins: [(pins[0], pins[1]), (pins[2], pins[3])],
+                            branch: [b1, b2],
+                            inductance: [[t.primary_inductance, m], [m, t.secondary_inductance]],
+                            resistance: [t.primary_resistance, t.secondary_resistance],
+                            initial_current: [0.0; 2],
+                            hist: history_len,
+                        }),
+                        1.0,
+                    );
+                    history_len += 4;
+                }
+                PartSpec::VoltageSource(waveform) => {
+                    let branch = new_unknown(
+                        &mut unknowns,
+                        format!("i({})", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    push(
+                        &mut devices,
+                        Device::VoltageSource {
+                            p: pins[0],
+                            n: pins[1],
+                            branch,
+                            waveform: waveform.clone(),
+                        },
+                        1.0,
+                    );
+                }
+                PartSpec::CurrentSource(waveform) => push(
+                    &mut devices,
+                    Device::CurrentSource {
+                        from: pins[0],
+                        to: pins[1],
+                        waveform: waveform.clone(),
+                    },
+                    1.0,
+                ),
+                PartSpec::Diode(p) | PartSpec::Bridge(p) => {
+                    // A bridge is four diodes: ac_a->dc_plus, ac_b->dc_plus,
+                    // dc_minus->ac_a, dc_minus->ac_b.
+                    let junctions: &[(usize, usize, f64, &str)] = match &part.spec {
+                        PartSpec::Diode(_) => &[(0, 1, 1.0, "")],
+                        _ => &[
+                            (0, 2, 1.0, ".1"),
+                            (1, 2, 0.0, ".2"),
+                            (3, 0, -1.0, ".3"),
+                            (3, 1, 0.0, ".4"),
+                        ],
+                    };
+                    for &(an, ca, sign, suffix) in junctions {
+                        let (anode, cathode) = (pins[an], pins[ca]);
+                        let (inner, series_g) = if p.series_resistance > 0.0 {
+                            let inner = new_unknown(
+                                &mut unknowns,
+                                format!("{}{}#junction", part.name, suffix),
+                                UnknownKind::Internal { part: pi },
+                            );
+                            (inner, 1.0 / p.series_resistance)
+                        } else {
+                            (anode, 0.0)
+                        };
+                        push(
+                            &mut devices,
+                            Device::Diode {
+                                anode,
+                                inner,
+                                cathode,
+                                series_g,
+                                junction: Junction::new(p),
+                                scratch: scratch_len,
+                            },
+                            sign,
+                        );
+                        scratch_len += DIODE_SCRATCH;
+                    }
+                }
+                PartSpec::Switch(s) => push(
+                    &mut devices,
+                    Device::Switch {
+                        a: pins[0],
+                        b: pins[1],
+                        control_p: pins[2],
+                        control_n: pins[3],
+                        on_voltage: s.on_voltage,
+                        off_voltage: s.off_voltage,
+                        on_g: 1.0 / s.on_resistance,
+                        off_g: 1.0 / s.off_resistance,
+                    },
+                    1.0,
+                ),
+            }
+            part_devices.push(own);
+        }
+
+        let mut error_probes = Vec::new();
+        for d in &devices {
+            d.error_probes(&mut error_probes);
+        }
+        let discrete_devices = devices
+            .iter()
+            .enumerate()
+            .filter(|(_, d)| d.initial_mode() != Mode::Continuous)
+            .map(|(i, _)| i)
+            .collect();
+        let nonlinear = devices.iter().any(Device::is_nonlinear);
+        Network {
+            circuit: circuit.clone(),
+            devices,
+            device_part,
+            part_devices,
+            unknowns,
+            history_len,
+            scratch_len,
+            error_probes,
+            discrete_devices,
+            nonlinear,
+        }
+    }
+
+    /// The circuit this network was compiled from.
+    pub fn circuit(&self) -> &Circuit {
+        &self.circuit
+    }
+
+    /// Number of unknowns including the reference node.
+    pub fn dim(&self) -> usize {
+        self.unknowns.len()
+    }
+
+    /// Name of unknown `i`: a node name, `i(part)` for a branch current, or
+    /// `part#junction` for an internal node.
+    pub fn unknown_name(&self, i: usize) -> &str {
+        &self.unknowns[i].0
+    }
+
+    /// Name of the part an unknown belongs to, or the node name.
+    pub fn unknown_owner(&self, i: usize) -> String {
+        match &self.unknowns[i].1 {
+            UnknownKind::Node(n) => format!("node `{}`", self.circuit.nodes[*n]),
+            UnknownKind::Branch { part } | UnknownKind::Internal { part } => {
+                format!("part `{}`", self.circuit.parts[*part].name)
+            }
+        }
+    }
+}

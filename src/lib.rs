@@ -1,0 +1,22 @@
+//! sagtrip: time-domain simulation of mains over/under-voltage protectors.
+//!
+//! The library holds everything; the `sagtrip` binary only parses arguments, reads and
+//! writes files and prints. The data path:
+//!
+//! circuit file → [`circuit_file::parse_circuit`] (validated [`circuit::Circuit`]) →
+//! [`engine::Simulator`] (compiled network, Newton-Raphson, adaptive trapezoidal steps,
+//! located discrete events) → an [`engine::Observer`] such as [`probe::Trace`] → reports.
+//!
+//! Simulation does not replace testing a real unit: mains voltage can kill, and local
+//! electrical codes and a licensed practitioner decide what is safe to build and install.
+
+#![warn(missing_docs)]
+
+pub mod circuit;
+pub mod circuit_file;
+pub mod devices;
+pub mod engine;
+pub mod output;
+pub mod probe;
+pub mod units;
+pub mod waveform;

@@ -1,0 +1,378 @@
+//! The `sagtrip` command line: parses arguments, reads and writes files, prints.
+//! Every computation lives in the library.
+
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::time::Instant;
+
+use std::fmt::Write as _;
+use std::io::Write as _;
+
+use clap::{Args, Parser, Subcommand, ValueEnum};
+
+use sagtrip::circuit::{Circuit, PartSpec};
+use sagtrip::circuit_file::parse_circuit;
+use sagtrip::engine::{Settings, Simulator, Start};
+use sagtrip::output::write_atomic;
+use sagtrip::probe::{Probe, Trace};
+use sagtrip::units::{parse_value, Engineering, Quantity};
+
+/// Appends a line to a report string (writing to a String cannot fail).
+macro_rules! say {
+    ($out:expr) => {
+        let _ = writeln!($out);
+    };
+    ($out:expr, $($arg:tt)*) => {
+        let _ = writeln!($out, $($arg)*);
+    };
+}
+
+const SAFETY: &str = "\
+SAFETY: mains voltage can kill. sagtrip simulates a circuit; it does not replace testing \
+a real unit, local electrical codes, or the judgement of a licensed practitioner.";
+
+/// Simulate mains over/under-voltage protectors in the time domain.
+#[derive(Parser)]
+#[command(name = "sagtrip", version, about, after_help = SAFETY)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Validate a circuit file and list its parts, nodes and parameter sets.
+    Check {
+        /// Circuit file (TOML).
+        #[arg(long)]
+        circuit: PathBuf,
+    },
+    /// Simulate a circuit in the time domain and summarise the probed quantities.
+    Run(RunArgs),
+}
+
+#[derive(Args)]
+struct RunArgs {
+    /// Circuit file (TOML).
+    #[arg(long)]
+    circuit: PathBuf,
+    /// Simulated time, e.g. 200ms, 1s (default: 10 mains cycles, or 100 ms).
+    #[arg(long)]
+    duration: Option<String>,
+    /// Largest time step, e.g. 50us (default 100us).
+    #[arg(long)]
+    max_step: Option<String>,
+    /// How the run begins.
+    #[arg(long, value_enum, default_value_t = StartArg::OperatingPoint)]
+    start: StartArg,
+    /// Quantity to record: a node name, or current:PART (repeatable; default: every node
+    /// and the currents of sources, inductors, transformers and switches).
+    #[arg(long = "probe")]
+    probes: Vec<String>,
+    /// Write the probed waveforms to this CSV file.
+    #[arg(long)]
+    trace: Option<PathBuf>,
+    /// Print the summary as JSON.
+    #[arg(long)]
+    json: bool,
+    /// Print solver counters (steps, Newton iterations, factorisations).
+    #[arg(long)]
+    stats: bool,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum StartArg {
+    /// Start at the DC operating point with the sources at their t = 0 values.
+    OperatingPoint,
+    /// Start from rest: capacitors discharged (or at their initial_voltage).
+    Rest,
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match cli.command {
+        Command::Check { circuit } => check(&circuit),
+        Command::Run(args) => run(&args),
+    };
+    match result {
+        Ok(text) => {
+            // A closed pipe (e.g. `| head`) is not an error worth a panic.
+            let _ = std::io::stdout().write_all(text.as_bytes());
+            ExitCode::SUCCESS
+        }
+        Err(message) => {
+            eprintln!("error: {}", message.trim_end());
+            ExitCode::FAILURE
+        }
+    }
+}
+
+fn load_circuit(path: &Path) -> Result<Circuit, String> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?;
+    parse_circuit(&text, &path.display().to_string()).map_err(|e| e.to_string())
+}
+
+fn part_summary(spec: &PartSpec) -> String {
+    use Quantity::*;
+    let e = |v: f64, q: Quantity| Engineering(v, q).to_string();
+    match spec {
+        PartSpec::Resistor { resistance } => e(*resistance, Resistance),
+        PartSpec::Capacitor { capacitance, .. } => e(*capacitance, Capacitance),
+        PartSpec::Inductor {
+            inductance,
+            series_resistance,
+            ..
+        } => format!(
+            "{}, {}",
+            e(*inductance, Inductance),
+            e(*series_resistance, Resistance)
+        ),
+        PartSpec::Transformer(t) => format!(
+            "{} / {}, k = {}",
+            e(t.primary_inductance, Inductance),
+            e(t.secondary_inductance, Inductance),
+            t.coupling
+        ),
+        PartSpec::VoltageSource(w) | PartSpec::CurrentSource(w) => w.to_string(),
+        PartSpec::Diode(d) | PartSpec::Bridge(d) => format!(
+            "Is = {}, n = {}{}",
+            e(d.saturation_current, Current),
+            d.emission_coefficient,
+            d.breakdown
+                .as_ref()
+                .map(|b| format!(", breakdown {}", e(b.voltage, Voltage)))
+                .unwrap_or_default()
+        ),
+        PartSpec::Switch(s) => format!(
+            "on above {}, off below {}",
+            e(s.on_voltage, Voltage),
+            e(s.off_voltage, Voltage)
+        ),
+    }
+}
+
+fn check(path: &Path) -> Result<String, String> {
+    let mut out = String::new();
+    let circuit = load_circuit(path)?;
+    say!(out, "{}: valid", path.display());
+    if !circuit.title.is_empty() {
+        say!(out, "title: {}", circuit.title);
+    }
+    say!(out, "\nparts ({}):", circuit.parts.len());
+    for part in &circuit.parts {
+        let pins: Vec<String> = part
+            .spec
+            .pin_names()
+            .iter()
+            .zip(&part.pins)
+            .map(|(pin, &node)| format!("{pin}={}", circuit.nodes[node]))
+            .collect();
+        say!(
+            out,
+            "  {:<14} {:<15} {:<40} {}",
+            part.name,
+            part.spec.kind_name(),
+            pins.join(" "),
+            part_summary(&part.spec)
+        );
+    }
+    say!(
+        out,
+        "\nnodes ({}, gnd is the reference):",
+        circuit.nodes.len()
+    );
+    for (i, node) in circuit.nodes.iter().enumerate() {
+        let users: Vec<&str> = circuit
+            .parts
+            .iter()
+            .filter(|p| p.pins.contains(&i))
+            .map(|p| p.name.as_str())
+            .collect();
+        say!(out, "  {:<14} {}", node, users.join(", "));
+    }
+    say!(out, "\nparameter sets ({}):", circuit.parameter_sets.len());
+    for set in &circuit.parameter_sets {
+        let values: Vec<String> = set
+            .values
+            .iter()
+            .map(|(k, v)| format!("{k} = {v}"))
+            .collect();
+        say!(
+            out,
+            "  {:<14} {:<8} {}; used by: {}",
+            set.name,
+            set.family,
+            values.join(", "),
+            if set.used_by.is_empty() {
+                "(none)".to_string()
+            } else {
+                set.used_by.join(", ")
+            }
+        );
+    }
+    Ok(out)
+}
+
+fn time_option(text: &Option<String>, name: &str) -> Result<Option<f64>, String> {
+    text.as_deref()
+        .map(|t| {
+            parse_value(t, Quantity::Time)
+                .map_err(|e| format!("--{name}: {e}"))
+                .and_then(|v| {
+                    if v > 0.0 {
+                        Ok(v)
+                    } else {
+                        Err(format!("--{name} must be positive, got {t}"))
+                    }
+                })
+        })
+        .transpose()
+}
+
+fn run(args: &RunArgs) -> Result<String, String> {
+    let mut out = String::new();
+    let circuit = load_circuit(&args.circuit)?;
+    let mut settings = Settings::default();
+    if let Some(step) = time_option(&args.max_step, "max-step")? {
+        settings.max_step_s = step;
+    }
+    let duration = time_option(&args.duration, "duration")?
+        .unwrap_or_else(|| circuit.mains_frequency_hz().map_or(0.1, |f| 10.0 / f));
+    let probes = if args.probes.is_empty() {
+        Probe::defaults(&circuit)
+    } else {
+        args.probes
+            .iter()
+            .map(|p| Probe::parse(p, &circuit).map_err(|e| format!("--probe {p}: {e}")))
+            .collect::<Result<Vec<_>, _>>()?
+    };
+
+    let started = Instant::now();
+    let mut sim = Simulator::new(&circuit, settings);
+    let start = match args.start {
+        StartArg::OperatingPoint => Start::OperatingPoint,
+        StartArg::Rest => Start::Rest,
+    };
+    let mut state = sim.start(start).map_err(|e| e.to_string())?;
+    let mut trace = Trace::new(probes);
+    trace.record(sim.network(), &state);
+    sim.advance(&mut state, duration, &mut trace)
+        .map_err(|e| format!("{}: {e}", args.circuit.display()))?;
+    let wall = started.elapsed().as_secs_f64();
+
+    if let Some(path) = &args.trace {
+        write_atomic(path, |w| trace.write_csv(&circuit, w))
+            .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
+    }
+
+    let summaries: Vec<serde_json::Value> = trace
+        .probes
+        .iter()
+        .zip(&trace.columns)
+        .map(|(probe, column)| {
+            let min = column.iter().copied().fold(f64::INFINITY, f64::min);
+            let max = column.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            serde_json::json!({
+                "probe": probe.label(&circuit),
+                "final": column.last().copied().unwrap_or(f64::NAN),
+                "min": min,
+                "max": max,
+            })
+        })
+        .collect();
+    if args.json {
+        let value = serde_json::json!({
+            "circuit": args.circuit.display().to_string(),
+            "title": circuit.title,
+            "duration_s": duration,
+            "probes": summaries,
+            "events": trace.events.iter().map(|e| serde_json::json!({
+                "time_s": e.time,
+                "part": circuit.parts[e.part].name,
+                "kind": e.kind,
+            })).collect::<Vec<_>>(),
+            "stats": state.stats,
+            "wall_time_s": wall,
+            "trace": args.trace.as_ref().map(|p| p.display().to_string()),
+        });
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+
+    say!(
+        out,
+        "{}{}",
+        args.circuit.display(),
+        if circuit.title.is_empty() {
+            String::new()
+        } else {
+            format!(": {}", circuit.title)
+        }
+    );
+    say!(
+        out,
+        "simulated {} in {} steps ({:.3} s wall, {:.0}x real time)",
+        Engineering(duration, Quantity::Time),
+        state.stats.accepted_steps,
+        wall,
+        duration / wall.max(1e-9)
+    );
+    say!(
+        out,
+        "\n{:<22} {:>14} {:>14} {:>14}",
+        "probe",
+        "final",
+        "min",
+        "max"
+    );
+    for s in &summaries {
+        say!(
+            out,
+            "{:<22} {:>14.6} {:>14.6} {:>14.6}",
+            s["probe"].as_str().unwrap_or(""),
+            s["final"].as_f64().unwrap_or(f64::NAN),
+            s["min"].as_f64().unwrap_or(f64::NAN),
+            s["max"].as_f64().unwrap_or(f64::NAN)
+        );
+    }
+    if !trace.events.is_empty() {
+        say!(out, "\ndiscrete events:");
+        for e in &trace.events {
+            say!(
+                out,
+                "  {:>12.6} ms  {:<14} {:?}",
+                e.time * 1e3,
+                circuit.parts[e.part].name,
+                e.kind
+            );
+        }
+    }
+    if args.stats {
+        let s = &state.stats;
+        say!(out, 
+            "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations, {} restarts, {} located events",
+            s.accepted_steps,
+            s.rejected_steps,
+            s.newton_failures,
+            s.newton_iterations,
+            s.factorizations,
+            s.restarts,
+            s.located_events
+        );
+    }
+    if let Some(path) = &args.trace {
+        say!(
+            out,
+            "\ntrace: {} rows x {} probes written to {}",
+            trace.time.len(),
+            trace.probes.len(),
+            path.display()
+        );
+    }
+    Ok(out)
+}

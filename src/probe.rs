@@ -1,0 +1,185 @@
+//! Probes and traces: which quantities a run records, and writing them out.
+//!
+//! A probe is a node voltage or a part current. A [`Trace`] is an [`Observer`] that keeps
+//! the probed values at every accepted step (and the discrete events), and renders them as
+//! CSV into any writer.
+
+use std::io::{self, Write};
+
+use crate::circuit::{Circuit, PartSpec};
+use crate::engine::{DiscreteEvent, Network, Observer, SimState};
+
+/// A recorded quantity.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub enum Probe {
+    /// Voltage of a node against `gnd`, volts.
+    Voltage {
+        /// Node index.
+        node: usize,
+    },
+    /// Current into the first pin of a part, amperes.
+    Current {
+        /// Part index.
+        part: usize,
+    },
+}
+
+/// Why a probe name was not understood.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum ProbeError {
+    /// No node of that name.
+    #[error("no node named `{name}` (nodes: {known})")]
+    UnknownNode {
+        /// The name asked for.
+        name: String,
+        /// The circuit's nodes.
+        known: String,
+    },
+    /// No part of that name.
+    #[error("no part named `{name}` (parts: {known})")]
+    UnknownPart {
+        /// The name asked for.
+        name: String,
+        /// The circuit's parts.
+        known: String,
+    },
+}
+
+impl Probe {
+    /// Reads `NODE` (a node voltage) or `current:PART` (a part's current).
+    pub fn parse(text: &str, circuit: &Circuit) -> Result<Probe, ProbeError> {
+        if let Some(part) = text.strip_prefix("current:") {
+            circuit
+                .part(part)
+                .map(|part| Probe::Current { part })
+                .ok_or_else(|| ProbeError::UnknownPart {
+                    name: part.to_string(),
+                    known: circuit
+                        .parts
+                        .iter()
+                        .map(|p| p.name.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                })
+        } else {
+            let name = text.strip_prefix("voltage:").unwrap_or(text);
+            circuit
+                .node(name)
+                .map(|node| Probe::Voltage { node })
+                .ok_or_else(|| ProbeError::UnknownNode {
+                    name: name.to_string(),
+                    known: circuit.nodes.join(", "),
+                })
+        }
+    }
+
+    /// Column name in traces: `NODE_V` or `PART_A`.
+    pub fn label(&self, circuit: &Circuit) -> String {
+        match self {
+            Probe::Voltage { node } => format!("{}_V", circuit.nodes[*node]),
+            Probe::Current { part } => format!("{}_A", circuit.parts[*part].name),
+        }
+    }
+
+    /// The probed value at a state.
+    pub fn value(&self, network: &Network, state: &SimState) -> f64 {
+        match self {
+            Probe::Voltage { node } => state.node_voltage(*node),
+            Probe::Current { part } => network.part_current(state, *part),
+        }
+    }
+
+    /// Every node voltage, plus the currents of sources, inductors and transformers.
+    pub fn defaults(circuit: &Circuit) -> Vec<Probe> {
+        let mut probes: Vec<Probe> = (1..circuit.nodes.len())
+            .map(|node| Probe::Voltage { node })
+            .collect();
+        for (part, p) in circuit.parts.iter().enumerate() {
+            if matches!(
+                p.spec,
+                PartSpec::VoltageSource(_)
+                    | PartSpec::Inductor { .. }
+                    | PartSpec::Transformer(_)
+                    | PartSpec::Switch(_)
+            ) {
+                probes.push(Probe::Current { part });
+            }
+        }
+        probes
+    }
+}
+
+/// Recorded probe values at each accepted step, and the discrete events.
+#[derive(Clone, Debug, Default)]
+pub struct Trace {
+    /// What each column holds.
+    pub probes: Vec<Probe>,
+    /// Times of the rows, seconds.
+    pub time: Vec<f64>,
+    /// One column per probe.
+    pub columns: Vec<Vec<f64>>,
+    /// Discrete events in time order.
+    pub events: Vec<DiscreteEvent>,
+    /// Rows closer together than this are skipped (0 keeps every step), seconds.
+    pub min_interval_s: f64,
+}
+
+impl Trace {
+    /// An empty trace of `probes`.
+    pub fn new(probes: Vec<Probe>) -> Self {
+        let columns = vec![Vec::new(); probes.len()];
+        Self {
+            probes,
+            columns,
+            ..Self::default()
+        }
+    }
+
+    /// Appends the probed values at `state` as a row.
+    pub fn record(&mut self, network: &Network, state: &SimState) {
+        if let Some(&last) = self.time.last() {
+            if state.time - last < self.min_interval_s {
+                return;
+            }
+        }
+        self.time.push(state.time);
+        for (probe, column) in self.probes.iter().zip(&mut self.columns) {
+            column.push(probe.value(network, state));
+        }
+    }
+
+    /// Index of the probe's column, if recorded.
+    pub fn column(&self, probe: &Probe) -> Option<&[f64]> {
+        self.probes
+            .iter()
+            .position(|p| p == probe)
+            .map(|i| self.columns[i].as_slice())
+    }
+
+    /// Writes the trace as CSV: `time_s` then one column per probe.
+    pub fn write_csv<W: Write>(&self, circuit: &Circuit, mut out: W) -> io::Result<()> {
+        write!(out, "time_s")?;
+        for p in &self.probes {
+            write!(out, ",{}", p.label(circuit))?;
+        }
+        writeln!(out)?;
+        for (row, t) in self.time.iter().enumerate() {
+            write!(out, "{t:.9e}")?;
+            for column in &self.columns {
+                write!(out, ",{:.9e}", column[row])?;
+            }
+            writeln!(out)?;
+        }
+        Ok(())
+    }
+}
+
+impl Observer for Trace {
+    fn step(&mut self, network: &Network, state: &SimState) {
+        self.record(network, state);
+    }
+
+    fn event(&mut self, _network: &Network, event: &DiscreteEvent) {
+        self.events.push(*event);
+    }
+}

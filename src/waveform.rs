@@ -1,0 +1,117 @@
+//! Time functions that drive independent sources: constant, sine and step.
+//!
+//! A waveform knows its value at any instant and the instants where it changes abruptly
+//! (breakpoints), which the transient engine must land on exactly.
+
+use std::f64::consts::PI;
+
+/// A source's value over time. Values are volts for voltage sources, amperes for current
+/// sources.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Waveform {
+    /// A constant value.
+    Constant(f64),
+    /// `offset + amplitude * sin(2 pi frequency t + phase)`.
+    Sine {
+        /// Peak value (not RMS).
+        amplitude: f64,
+        /// Frequency in hertz.
+        frequency_hz: f64,
+        /// Phase at t = 0, in degrees.
+        phase_deg: f64,
+        /// Constant added to the sine.
+        offset: f64,
+    },
+    /// `before` until `at_s`, then `after`: an ideal step with a breakpoint at `at_s`.
+    Step {
+        /// Value before the step.
+        before: f64,
+        /// Value from the step on.
+        after: f64,
+        /// Instant of the step, seconds.
+        at_s: f64,
+    },
+}
+
+impl Waveform {
+    /// The value at time `t` (seconds).
+    ///
+    /// ```
+    /// use sagtrip::waveform::Waveform;
+    /// let w = Waveform::Sine { amplitude: 2.0, frequency_hz: 50.0, phase_deg: 90.0, offset: 0.0 };
+    /// assert!((w.value(0.0) - 2.0).abs() < 1e-12);
+    /// ```
+    pub fn value(&self, t: f64) -> f64 {
+        match *self {
+            Waveform::Constant(v) => v,
+            Waveform::Sine {
+                amplitude,
+                frequency_hz,
+                phase_deg,
+                offset,
+            } => offset + amplitude * (2.0 * PI * frequency_hz * t + phase_deg.to_radians()).sin(),
+            Waveform::Step {
+                before,
+                after,
+                at_s,
+            } => {
+                if t < at_s {
+                    before
+                } else {
+                    after
+                }
+            }
+        }
+    }
+
+    /// The first instant strictly after `t` where the waveform is not smooth, or infinity.
+    pub fn next_breakpoint(&self, t: f64) -> f64 {
+        match *self {
+            Waveform::Step { at_s, .. } if at_s > t => at_s,
+            _ => f64::INFINITY,
+        }
+    }
+
+    /// The fundamental frequency of a periodic waveform, if it has one.
+    pub fn frequency_hz(&self) -> Option<f64> {
+        match *self {
+            Waveform::Sine { frequency_hz, .. } => Some(frequency_hz),
+            _ => None,
+        }
+    }
+}
+
+impl std::fmt::Display for Waveform {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match *self {
+            Waveform::Constant(v) => write!(f, "constant {v}"),
+            Waveform::Sine {
+                amplitude,
+                frequency_hz,
+                phase_deg,
+                offset,
+            } => {
+                write!(
+                    f,
+                    "sine {:.4} peak ({:.4} rms), {frequency_hz} Hz",
+                    amplitude,
+                    amplitude / std::f64::consts::SQRT_2
+                )?;
+                if phase_deg != 0.0 {
+                    write!(f, ", phase {phase_deg} deg")?;
+                }
+                if offset != 0.0 {
+                    write!(f, ", offset {offset}")?;
+                }
+                Ok(())
+            }
+            Waveform::Step {
+                before,
+                after,
+                at_s,
+            } => {
+                write!(f, "step {before} to {after} at {at_s} s")
+            }
+        }
+    }
+}
