@@ -354,7 +354,7 @@ fn run(args: &RunArgs) -> Result<String, String> {
     }
     if args.stats {
         let s = &state.stats;
-        say!(out, 
+        say!(out,
             "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations, {} restarts, {} located events",
             s.accepted_steps,
             s.rejected_steps,
