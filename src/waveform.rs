@@ -64,6 +64,23 @@ impl Waveform {
         }
     }
 
+    /// The left limit of the value at `t`: what a step ending exactly at a breakpoint sees.
+    pub fn value_before(&self, t: f64) -> f64 {
+        match *self {
+            Waveform::Step { before, at_s, .. } if t <= at_s => before,
+            _ => self.value(t),
+        }
+    }
+
+    /// The value at `t`, or its left limit when `left` is set.
+    pub fn value_from(&self, t: f64, left: bool) -> f64 {
+        if left {
+            self.value_before(t)
+        } else {
+            self.value(t)
+        }
+    }
+
     /// The first instant strictly after `t` where the waveform is not smooth, or infinity.
     pub fn next_breakpoint(&self, t: f64) -> f64 {
         match *self {

@@ -45,6 +45,16 @@ pub(crate) struct SolveContext {
     pub gmin: f64,
     /// Conductance from every node to the reference, siemens (raised in gmin stepping).
     pub shunt: f64,
+    /// The step ends exactly on a breakpoint: sources take their value just before it.
+    pub left_limit: bool,
+}
+
+impl SolveContext {
+    /// A source's value for this solve (scaled, left limit at a breakpoint).
+    #[inline]
+    pub fn source(&self, waveform: &Waveform) -> f64 {
+        self.source_scale * waveform.value_from(self.time, self.left_limit)
+    }
 }
 
 /// The matrix and right-hand side being assembled, `dim` x `dim`, row-major.
@@ -183,7 +193,7 @@ impl Device {
                 waveform,
             } => sources::stamp_voltage(m, ctx, *p, *n, *branch, waveform),
             Device::CurrentSource { from, to, waveform } => {
-                m.current(*from, *to, ctx.source_scale * waveform.value(ctx.time));
+                m.current(*from, *to, ctx.source(waveform));
             }
             Device::Diode {
                 anode,

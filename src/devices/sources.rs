@@ -16,5 +16,5 @@ pub(super) fn stamp_voltage(
     waveform: &Waveform,
 ) {
     m.branch_incidence(p, n, branch);
-    m.b[branch] += ctx.source_scale * waveform.value(ctx.time);
+    m.b[branch] += ctx.source(waveform);
 }

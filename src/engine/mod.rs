@@ -61,9 +61,9 @@ impl Default for Settings {
             reltol: 1e-4,
             voltage_abstol: 1e-6,
             current_abstol: 1e-9,
-            lte_reltol: 1e-3,
-            lte_voltage_abstol: 1e-3,
-            lte_current_abstol: 1e-6,
+            lte_reltol: 1e-4,
+            lte_voltage_abstol: 1e-4,
+            lte_current_abstol: 1e-7,
             max_newton_iterations: 50,
             max_operating_point_iterations: 200,
             event_tolerance_s: 1e-6,
@@ -199,6 +199,9 @@ impl SimState {
         self.modes[device]
     }
 }
+
+/// A solved node voltage (V) or branch current (A) beyond this is taken as undetermined.
+const IMPLAUSIBLE: f64 = 1e9;
 
 /// Why one Newton solve failed.
 enum NewtonFailure {
@@ -338,6 +341,7 @@ impl Simulator {
             source_scale: 1.0,
             gmin: self.settings.gmin,
             shunt: self.settings.gmin,
+            left_limit: false,
         }
     }
 
@@ -434,8 +438,10 @@ impl Simulator {
         ctx: &SolveContext,
         max_iterations: usize,
     ) -> Result<(), NewtonFailure> {
+        // Junction limiting is anchored at the last accepted solution, not at the
+        // extrapolated guess, so a predictor overshoot cannot start a junction far forward.
         for d in &self.network.devices {
-            d.begin_newton(&self.ws.x_sol, &mut self.ws.scratch);
+            d.begin_newton(&state.x, &mut self.ws.scratch);
         }
         let node_count = self.network.circuit.nodes.len();
         let dim = self.network.dim();
@@ -506,6 +512,11 @@ impl Simulator {
             }
             std::mem::swap(&mut ws.x_sol, &mut ws.x_next);
             if converged {
+                // A node voltage or branch current beyond any physical value means the
+                // circuit leaves it undetermined (held only by gmin).
+                if let Some(i) = (1..dim).find(|&i| ws.x_sol[i].abs() > IMPLAUSIBLE) {
+                    return Err(NewtonFailure::Singular(i));
+                }
                 return Ok(());
             }
         }
@@ -562,8 +573,10 @@ impl Simulator {
         state: &mut SimState,
         h: f64,
         method: Method,
+        left_limit: bool,
     ) -> Result<(), NewtonFailure> {
-        let ctx = self.context(state.time + h, h, method);
+        let mut ctx = self.context(state.time + h, h, method);
+        ctx.left_limit = left_limit;
         let ws = &mut self.ws;
         if state.points_since_break >= 2 && self.network.nonlinear {
             let dt_past = state.time - state.past_t[0];
@@ -693,7 +706,7 @@ impl Simulator {
             if width < 4.0 * self.settings.event_tolerance_s {
                 tm = ta + 0.5 * width;
             }
-            self.solve_step(state, tm, method)?;
+            self.solve_step(state, tm, method, false)?;
             let fm = self.crossing(&self.ws.x_sol, &state.modes);
             if fm > 0.0 {
                 tb = tm;
@@ -762,7 +775,8 @@ impl Simulator {
                 h = 0.5 * remaining;
             }
 
-            if let Err(f) = self.solve_step(state, h, method) {
+            let at_breakpoint = lands && stop == breakpoint;
+            if let Err(f) = self.solve_step(state, h, method, at_breakpoint) {
                 state.stats.newton_failures += 1;
                 if matches!(f, NewtonFailure::Singular(_)) || h / 8.0 < self.settings.min_step_s {
                     let ctx = self.context(state.time + h, h, method);

@@ -1,0 +1,236 @@
+//! Linear circuits against their closed-form solutions.
+//! Source for every formula here: Hayt, Kemmerly and Durbin, Engineering Circuit Analysis
+//! (first- and second-order transient responses).
+
+mod common;
+
+use common::{settings, simulate};
+use sagtrip::engine::Start;
+
+const RC_STEP: &str = r#"
+[part.drive]
+kind = "voltage-source"
+pins = ["in", "gnd"]
+step = { before = "0V", after = "5V", at = "1ms" }
+[part.r1]
+kind = "resistor"
+pins = ["in", "out"]
+resistance = "1k"
+[part.c1]
+kind = "capacitor"
+pins = ["out", "gnd"]
+capacitance = "1u"
+"#;
+
+#[test]
+fn rc_charge_follows_the_exponential() {
+    let run = simulate(RC_STEP, Start::OperatingPoint, 8e-3, settings(), &["out"]);
+    let tau = 1e-3;
+    let mut worst = 0.0_f64;
+    for (t, v) in run.trace.time.iter().zip(run.column("out")) {
+        // RC charge: v = Vf (1 - exp(-(t - t0)/RC)) (Hayt, Kemmerly and Durbin).
+        let expected = if *t < 1e-3 {
+            0.0
+        } else {
+            5.0 * (1.0 - (-(t - 1e-3) / tau).exp())
+        };
+        worst = worst.max((v - expected).abs());
+    }
+    // 0.1% of the 5 V step.
+    assert!(worst < 5e-3, "worst error {worst} V");
+}
+
+#[test]
+fn rc_discharge_follows_the_exponential() {
+    let text = RC_STEP.replace(
+        r#"step = { before = "0V", after = "5V", at = "1ms" }"#,
+        r#"step = { before = "5V", after = "0V", at = "1ms" }"#,
+    );
+    let run = simulate(&text, Start::OperatingPoint, 8e-3, settings(), &["out"]);
+    let mut worst = 0.0_f64;
+    for (t, v) in run.trace.time.iter().zip(run.column("out")) {
+        // RC discharge: v = V0 exp(-(t - t0)/RC) (Hayt, Kemmerly and Durbin).
+        let expected = if *t < 1e-3 {
+            5.0
+        } else {
+            5.0 * (-(t - 1e-3) / 1e-3).exp()
+        };
+        worst = worst.max((v - expected).abs());
+    }
+    assert!(worst < 5e-3, "worst error {worst} V");
+    // Time to fall to 1 V: t = RC ln(V0 / v) = 1 ms ln 5 = 1.6094 ms after the step.
+    let crossing = run
+        .trace
+        .time
+        .iter()
+        .zip(run.column("out"))
+        .find(|(_, v)| **v < 1.0)
+        .map(|(t, _)| *t)
+        .unwrap();
+    assert!((crossing - 1e-3 - 1.609_438e-3).abs() < 60e-6, "{crossing}");
+}
+
+#[test]
+fn rl_current_rises_exponentially() {
+    let text = r#"
+[part.supply]
+kind = "voltage-source"
+pins = ["a", "gnd"]
+dc = "10V"
+[part.r1]
+kind = "resistor"
+pins = ["a", "b"]
+resistance = "100"
+[part.l1]
+kind = "inductor"
+pins = ["b", "gnd"]
+inductance = "100mH"
+"#;
+    let run = simulate(text, Start::Rest, 5e-3, settings(), &["current:l1"]);
+    let mut worst = 0.0_f64;
+    for (t, i) in run.trace.time.iter().zip(run.column("current:l1")) {
+        // RL: i = (V/R)(1 - exp(-t R/L)), tau = 1 ms (Hayt, Kemmerly and Durbin).
+        let expected = 0.1 * (1.0 - (-t / 1e-3).exp());
+        worst = worst.max((i - expected).abs());
+    }
+    // 0.1% of the final 100 mA.
+    assert!(worst < 1e-4, "worst error {worst} A");
+}
+
+const RLC: &str = r#"
+[part.c1]
+kind = "capacitor"
+pins = ["top", "gnd"]
+capacitance = "1u"
+initial_voltage = "1V"
+[part.l1]
+kind = "inductor"
+pins = ["top", "mid"]
+inductance = "1mH"
+[part.r1]
+kind = "resistor"
+pins = ["mid", "gnd"]
+resistance = "10"
+"#;
+
+#[test]
+fn series_rlc_rings_at_the_damped_frequency_and_decays() {
+    let run = simulate(RLC, Start::Rest, 1e-3, settings(), &["top"]);
+    // Series RLC, underdamped (Hayt, Kemmerly and Durbin): alpha = R/2L,
+    // w0 = 1/sqrt(LC), wd = sqrt(w0^2 - alpha^2),
+    // v(t) = V0 exp(-alpha t)(cos wd t + (alpha/wd) sin wd t).
+    let alpha = 10.0 / (2.0 * 1e-3);
+    let w0 = 1.0 / (1e-3_f64 * 1e-6).sqrt();
+    let wd = (w0 * w0 - alpha * alpha).sqrt();
+    let mut worst = 0.0_f64;
+    for (t, v) in run.trace.time.iter().zip(run.column("top")) {
+        let expected = (-alpha * t).exp() * ((wd * t).cos() + alpha / wd * (wd * t).sin());
+        worst = worst.max((v - expected).abs());
+    }
+    // 1% of the initial 1 V over five periods.
+    assert!(worst < 0.01, "worst error {worst} V");
+
+    // Ringing frequency from the downward zero crossings.
+    let times = &run.trace.time;
+    let v = run.column("top");
+    let mut crossings = Vec::new();
+    for k in 1..v.len() {
+        if v[k - 1] > 0.0 && v[k] <= 0.0 {
+            let w = v[k - 1] / (v[k - 1] - v[k]);
+            crossings.push(times[k - 1] + w * (times[k] - times[k - 1]));
+        }
+    }
+    assert!(crossings.len() >= 4);
+    let period = (crossings[3] - crossings[0]) / 3.0;
+    let expected_period = 2.0 * std::f64::consts::PI / wd;
+    assert!(
+        (period / expected_period - 1.0).abs() < 2e-3,
+        "period {period} s, expected {expected_period} s"
+    );
+
+    // Decay: successive positive peaks shrink by exp(-alpha T).
+    let peak = |from: f64, to: f64| {
+        times
+            .iter()
+            .zip(v)
+            .filter(|(t, _)| **t >= from && **t < to)
+            .map(|(_, v)| *v)
+            .fold(f64::NEG_INFINITY, f64::max)
+    };
+    let first = peak(0.5 * expected_period, 1.5 * expected_period);
+    let second = peak(1.5 * expected_period, 2.5 * expected_period);
+    let ratio = second / first;
+    let expected_ratio = (-alpha * expected_period).exp();
+    assert!(
+        (ratio / expected_ratio - 1.0).abs() < 0.02,
+        "decay ratio {ratio}, expected {expected_ratio}"
+    );
+}
+
+#[test]
+fn lc_tank_rings_at_its_resonant_frequency() {
+    // LC 1 mH, 1 uF: f0 = 1/(2 pi sqrt(LC)) = 5032.921 Hz (check-values, derived).
+    let text = RLC.replace("resistance = \"10\"", "resistance = \"1m\"");
+    let run = simulate(&text, Start::Rest, 2e-3, settings(), &["top"]);
+    let times = &run.trace.time;
+    let v = run.column("top");
+    let mut crossings = Vec::new();
+    for k in 1..v.len() {
+        if v[k - 1] > 0.0 && v[k] <= 0.0 {
+            let w = v[k - 1] / (v[k - 1] - v[k]);
+            crossings.push(times[k - 1] + w * (times[k] - times[k - 1]));
+        }
+    }
+    let n = crossings.len() - 1;
+    let f = n as f64 / (crossings[n] - crossings[0]);
+    assert!((f / 5032.921 - 1.0).abs() < 1e-3, "f0 = {f} Hz");
+}
+
+/// Driven RC from rest with fixed maximum steps: the trapezoidal rule's error must fall
+/// about fourfold when the step halves (second-order accuracy).
+#[test]
+fn trapezoidal_error_falls_fourfold_when_the_step_halves() {
+    let text = r#"
+[part.drive]
+kind = "voltage-source"
+pins = ["in", "gnd"]
+sine = { amplitude = "10V", frequency = "200Hz" }
+[part.r1]
+kind = "resistor"
+pins = ["in", "out"]
+resistance = "1k"
+[part.c1]
+kind = "capacitor"
+pins = ["out", "gnd"]
+capacitance = "1u"
+"#;
+    let tau: f64 = 1e-3;
+    let w = 2.0 * std::f64::consts::PI * 200.0;
+    let wt = w * tau;
+    // Driven RC from rest: v = A/(1+(w tau)^2) (sin wt - w tau cos wt)
+    //                        + A w tau/(1+(w tau)^2) exp(-t/tau)  (Hayt, Kemmerly and Durbin).
+    let exact = |t: f64| {
+        10.0 / (1.0 + wt * wt) * ((w * t).sin() - wt * (w * t).cos())
+            + 10.0 * wt / (1.0 + wt * wt) * (-t / tau).exp()
+    };
+    let error_with = |max_step: f64| {
+        let mut s = settings();
+        s.max_step_s = max_step;
+        // Truncation-error control off: every step is the maximum (after the restart ramp).
+        s.lte_reltol = 1e12;
+        let run = simulate(text, Start::Rest, 20e-3, s, &["out"]);
+        run.trace
+            .time
+            .iter()
+            .zip(run.column("out"))
+            .filter(|(t, _)| **t > 5e-3)
+            .map(|(t, v)| (v - exact(*t)).abs())
+            .fold(0.0, f64::max)
+    };
+    let e1 = error_with(100e-6);
+    let e2 = error_with(50e-6);
+    let e3 = error_with(25e-6);
+    let (r1, r2) = (e1 / e2, e2 / e3);
+    assert!((3.5..4.5).contains(&r1), "ratio {r1} ({e1} / {e2})");
+    assert!((3.5..4.5).contains(&r2), "ratio {r2} ({e2} / {e3})");
+}
