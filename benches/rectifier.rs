@@ -1,1 +1,41 @@
-fn main() {}
+//! Benchmarks of the transient engine. Run with `cargo bench`; figures go to
+//! `docs/performance.md`.
+
+use sagtrip::circuit_file::parse_circuit;
+use sagtrip::engine::{Settings, Simulator, Start};
+
+fn main() {
+    divan::main();
+}
+
+fn load(name: &str) -> sagtrip::circuit::Circuit {
+    let path = format!("{}/examples/{name}", env!("CARGO_MANIFEST_DIR"));
+    let text = std::fs::read_to_string(&path).unwrap();
+    parse_circuit(&text, &path).unwrap()
+}
+
+/// One simulated second of a 50 Hz bridge rectifier with capacitor and resistive load,
+/// started from rest.
+#[divan::bench(sample_count = 10)]
+fn bridge_rectifier_one_second(bencher: divan::Bencher) {
+    let circuit = load("bridge-rectifier.toml");
+    bencher.bench_local(|| {
+        let mut sim = Simulator::new(&circuit, Settings::default());
+        let mut state = sim.start(Start::Rest).unwrap();
+        sim.advance(&mut state, 1.0, &mut ()).unwrap();
+        divan::black_box(state.stats.accepted_steps)
+    });
+}
+
+/// One simulated second of the transformer-fed supply (coupled windings, bridge, zener,
+/// LED), started from rest.
+#[divan::bench(sample_count = 10)]
+fn transformer_supply_one_second(bencher: divan::Bencher) {
+    let circuit = load("transformer-supply.toml");
+    bencher.bench_local(|| {
+        let mut sim = Simulator::new(&circuit, Settings::default());
+        let mut state = sim.start(Start::Rest).unwrap();
+        sim.advance(&mut state, 1.0, &mut ()).unwrap();
+        divan::black_box(state.stats.accepted_steps)
+    });
+}

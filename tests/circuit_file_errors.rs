@@ -19,9 +19,13 @@ resistance = "1k"
 fn check(text: &str, line: usize, field: &str, words: &str) {
     let error = rejected(text);
     let rendered = error.to_string();
-    let hit = error.problems.iter().find(|p| p.field == field).unwrap_or_else(|| {
-        panic!("no problem for field `{field}` in:\n{rendered}");
-    });
+    let hit = error
+        .problems
+        .iter()
+        .find(|p| p.field == field)
+        .unwrap_or_else(|| {
+            panic!("no problem for field `{field}` in:\n{rendered}");
+        });
     assert!(
         hit.message.contains(words),
         "message `{}` lacks `{words}`",
@@ -33,32 +37,54 @@ fn check(text: &str, line: usize, field: &str, words: &str) {
 
 #[test]
 fn unknown_part_kind() {
-    let text = format!("{GOOD_TAIL}[part.x1]\nkind = \"flux-capacitor\"\npins = [\"a\", \"gnd\"]\n");
-    check(&text, 11, "part.x1.kind", "unknown part kind `flux-capacitor`");
+    let text =
+        format!("{GOOD_TAIL}[part.x1]\nkind = \"flux-capacitor\"\npins = [\"a\", \"gnd\"]\n");
+    check(
+        &text,
+        11,
+        "part.x1.kind",
+        "unknown part kind `flux-capacitor`",
+    );
 }
 
 #[test]
 fn unknown_parameter() {
-    let text = GOOD_TAIL.replace("resistance = \"1k\"", "resistance = \"1k\"\ntolerance_band = 3");
-    check(&text, 10, "part.r_load.tolerance_band", "unknown parameter `tolerance_band`");
+    let text = GOOD_TAIL.replace(
+        "resistance = \"1k\"",
+        "resistance = \"1k\"\ntolerance_band = 3",
+    );
+    check(
+        &text,
+        10,
+        "part.r_load.tolerance_band",
+        "unknown parameter `tolerance_band`",
+    );
 }
 
 #[test]
 fn missing_and_extra_pins() {
-    let text = GOOD_TAIL.replace("pins = [\"a\", \"gnd\"]\nresistance", "pins = [\"a\"]\nresistance");
+    let text = GOOD_TAIL.replace(
+        "pins = [\"a\", \"gnd\"]\nresistance",
+        "pins = [\"a\"]\nresistance",
+    );
     check(&text, 8, "part.r_load.pins", "has 2 pins");
     let text = GOOD_TAIL.replace(
         "pins = [\"a\", \"gnd\"]\nresistance",
         "pins = { a = \"a\", b = \"gnd\", c = \"x\" }\nresistance",
     );
     check(&text, 8, "part.r_load.pins.c", "extra pin `c`");
-    let text = GOOD_TAIL.replace("pins = [\"a\", \"gnd\"]\nresistance", "pins = { a = \"a\" }\nresistance");
+    let text = GOOD_TAIL.replace(
+        "pins = [\"a\", \"gnd\"]\nresistance",
+        "pins = { a = \"a\" }\nresistance",
+    );
     check(&text, 8, "part.r_load.pins", "missing pin b");
 }
 
 #[test]
 fn duplicate_part_names() {
-    let text = format!("{GOOD_TAIL}[part.r_load]\nkind = \"resistor\"\npins = [\"a\", \"gnd\"]\nresistance = 5\n");
+    let text = format!(
+        "{GOOD_TAIL}[part.r_load]\nkind = \"resistor\"\npins = [\"a\", \"gnd\"]\nresistance = 5\n"
+    );
     let error = rejected(&text);
     let p = &error.problems[0];
     assert_eq!(p.field, "(syntax)");
@@ -69,7 +95,12 @@ fn duplicate_part_names() {
 #[test]
 fn node_with_one_connection() {
     let text = format!("{GOOD_TAIL}[part.r_dangling]\nkind = \"resistor\"\npins = [\"a\", \"nowhere\"]\nresistance = 5\n");
-    check(&text, 12, "part.r_dangling.pins.b", "node `nowhere` has only one connection");
+    check(
+        &text,
+        12,
+        "part.r_dangling.pins.b",
+        "node `nowhere` has only one connection",
+    );
 }
 
 #[test]
@@ -82,7 +113,9 @@ fn floating_group_is_named() {
 
 #[test]
 fn loop_of_voltage_sources() {
-    let text = format!("{GOOD_TAIL}[part.supply2]\nkind = \"voltage-source\"\npins = [\"a\", \"gnd\"]\ndc = 3\n");
+    let text = format!(
+        "{GOOD_TAIL}[part.supply2]\nkind = \"voltage-source\"\npins = [\"a\", \"gnd\"]\ndc = 3\n"
+    );
     check(&text, 10, "part.supply2", "loop of voltage sources");
     let rendered = rejected(&text).to_string();
     assert!(rendered.contains("supply -> supply2"), "{rendered}");
@@ -96,7 +129,10 @@ fn loop_of_ideal_inductors() {
     // supply, l1 and l2 close a loop with no resistance.
     check(&text, 14, "part.l2", "l1 -> supply -> l2");
     // With winding resistance the loop is well posed.
-    let fixed = text.replace("inductance = \"1m\"\n[part.l2]", "inductance = \"1m\"\nseries_resistance = 1\n[part.l2]");
+    let fixed = text.replace(
+        "inductance = \"1m\"\n[part.l2]",
+        "inductance = \"1m\"\nseries_resistance = 1\n[part.l2]",
+    );
     assert!(sagtrip::circuit_file::parse_circuit(&fixed, "ok.toml").is_ok());
 }
 
@@ -104,7 +140,9 @@ fn loop_of_ideal_inductors() {
 fn non_positive_values() {
     let text = GOOD_TAIL.replace("resistance = \"1k\"", "resistance = \"-1k\"");
     check(&text, 9, "part.r_load.resistance", "must be positive");
-    let text = format!("{GOOD_TAIL}[part.c1]\nkind = \"capacitor\"\npins = [\"a\", \"gnd\"]\ncapacitance = 0\n");
+    let text = format!(
+        "{GOOD_TAIL}[part.c1]\nkind = \"capacitor\"\npins = [\"a\", \"gnd\"]\ncapacitance = 0\n"
+    );
     check(&text, 13, "part.c1.capacitance", "must be positive");
     let text = format!("{GOOD_TAIL}[part.l1]\nkind = \"inductor\"\npins = [\"a\", \"gnd\"]\ninductance = \"-2mH\"\nseries_resistance = 1\n");
     check(&text, 13, "part.l1.inductance", "must be positive");
@@ -115,7 +153,12 @@ fn unknown_parameter_set() {
     let text = format!(
         "[parameter_set.fast]\nkind = \"diode\"\nsaturation_current = \"1n\"\n{GOOD_TAIL}[part.d1]\nkind = \"diode\"\npins = [\"a\", \"gnd\"]\nuses = \"slow\"\n"
     );
-    check(&text, 16, "part.d1.uses", "unknown parameter set `slow` (known diode sets: fast)");
+    check(
+        &text,
+        16,
+        "part.d1.uses",
+        "unknown parameter set `slow` (known diode sets: fast)",
+    );
 }
 
 #[test]
@@ -150,7 +193,10 @@ fn every_problem_is_reported_at_once() {
 
 #[test]
 fn source_needs_exactly_one_waveform() {
-    let text = GOOD_TAIL.replace("dc = \"5V\"", "dc = \"5V\"\nsine = { rms = 1, frequency = 50 }");
+    let text = GOOD_TAIL.replace(
+        "dc = \"5V\"",
+        "dc = \"5V\"\nsine = { rms = 1, frequency = 50 }",
+    );
     check(&text, 6, "part.supply", "exactly one waveform");
     let text = GOOD_TAIL.replace("dc = \"5V\"", "sine = { rms = 1 }");
     check(&text, 5, "part.supply.sine", "missing `frequency`");

@@ -64,7 +64,10 @@ fn series_resistor_diode_matches_lambert_w() {
             "V={v}: simulated {got}, Lambert W {reference}"
         );
         // Golden values are given to 7 significant figures.
-        assert!((got / golden - 1.0).abs() < 2e-6, "V={v}: {got} vs {golden}");
+        assert!(
+            (got / golden - 1.0).abs() < 2e-6,
+            "V={v}: {got} vs {golden}"
+        );
     }
 }
 
@@ -88,7 +91,13 @@ breakdown_voltage = "5.1V"
 breakdown_current = "5mA"
 breakdown_resistance = "10"
 "#;
-    let run = simulate(text, Start::OperatingPoint, 1e-6, settings(), &["ref", "current:r_z"]);
+    let run = simulate(
+        text,
+        Start::OperatingPoint,
+        1e-6,
+        settings(),
+        &["ref", "current:r_z"],
+    );
     let v = run.column("ref")[0];
     let i = run.column("current:r_z")[0];
     // Zener model definition: V = BV at I = Ibv.
@@ -98,7 +107,13 @@ breakdown_resistance = "10"
     // Slope: at twice the current the voltage rises by about r_slope * dI (small signal),
     // more precisely nb Vt ln 2 = r_slope Ibv ln 2 for the exponential law.
     let text2 = text.replace("1.38k", "690");
-    let run2 = simulate(&text2, Start::OperatingPoint, 1e-6, settings(), &["ref", "current:r_z"]);
+    let run2 = simulate(
+        &text2,
+        Start::OperatingPoint,
+        1e-6,
+        settings(),
+        &["ref", "current:r_z"],
+    );
     let v2 = run2.column("ref")[0];
     let i2 = run2.column("current:r_z")[0];
     let expected = 5.1 + 10.0 * 5e-3 * (i2 / 5e-3).ln();

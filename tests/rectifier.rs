@@ -32,7 +32,13 @@ fn ripple_and_current(run: &common::Run, from: f64) -> (f64, f64) {
     let max = rail.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let min = rail.iter().copied().fold(f64::INFINITY, f64::min);
     // Time-weighted mean load current over the window.
-    let times: Vec<f64> = run.trace.time.iter().copied().filter(|t| *t >= from).collect();
+    let times: Vec<f64> = run
+        .trace
+        .time
+        .iter()
+        .copied()
+        .filter(|t| *t >= from)
+        .collect();
     let mut area = 0.0;
     for k in 1..times.len() {
         area += 0.5 * (rail[k] + rail[k - 1]) * (times[k] - times[k - 1]);

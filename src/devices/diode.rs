@@ -97,6 +97,15 @@ impl Junction {
         v
     }
 
+    /// Where Newton limiting starts for a step (see `Device::begin_newton`).
+    pub fn limiting_anchor(&self, v_accepted: f64, v_guess: f64) -> f64 {
+        if v_guess > self.v_crit && v_guess > v_accepted {
+            v_accepted
+        } else {
+            v_guess
+        }
+    }
+
     /// Stamps the linearised junction between `p` (anode side) and `n` (cathode).
     /// Scratch: `[limited voltage, conductance, equivalent current, 1 if limited]`.
     #[inline]

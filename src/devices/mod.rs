@@ -229,16 +229,22 @@ impl Device {
         matches!(self, Device::Diode { .. })
     }
 
-    /// Prepares Newton scratch from the starting guess.
-    pub fn begin_newton(&self, x: &[f64], scratch: &mut [f64]) {
+    /// Prepares Newton scratch: the junction voltage that limiting starts from. It is the
+    /// guess's own value unless the guess pushes the junction further forward than the
+    /// last accepted solution beyond its critical voltage, where an extrapolation overshoot
+    /// would start the exponential far out; then limiting starts from the accepted value.
+    pub fn begin_newton(&self, accepted: &[f64], guess: &[f64], scratch: &mut [f64]) {
         if let Device::Diode {
             inner,
             cathode,
+            junction,
             scratch: s,
             ..
         } = self
         {
-            scratch[*s] = x[*inner] - x[*cathode];
+            let v_accepted = accepted[*inner] - accepted[*cathode];
+            let v_guess = guess[*inner] - guess[*cathode];
+            scratch[*s] = junction.limiting_anchor(v_accepted, v_guess);
         }
     }
 

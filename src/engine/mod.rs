@@ -23,7 +23,8 @@ use crate::devices::{Method, Mna, Mode, SolveContext};
 /// Tolerances and step limits of a run.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Settings {
-    /// Largest step, seconds. Default 100 us (200 steps per 50 Hz cycle at most).
+    /// Largest step, seconds. Default 500 us (at least 40 steps per 50 Hz cycle; the
+    /// truncation-error control takes shorter steps wherever the waveforms need them).
     pub max_step_s: f64,
     /// Smallest step before the run gives up, seconds. Default 1e-12 s.
     pub min_step_s: f64,
@@ -35,9 +36,9 @@ pub struct Settings {
     pub voltage_abstol: f64,
     /// Newton absolute tolerance on branch currents, amperes. Default 1 nA.
     pub current_abstol: f64,
-    /// Relative local-truncation-error tolerance per step. Default 1e-3.
+    /// Relative local-truncation-error tolerance per step. Default 5e-4.
     pub lte_reltol: f64,
-    /// Absolute local-truncation-error tolerance on capacitor voltages, volts. Default 1 mV.
+    /// Absolute local-truncation-error tolerance on capacitor voltages, volts. Default 0.1 mV.
     pub lte_voltage_abstol: f64,
     /// Absolute local-truncation-error tolerance on inductor currents, amperes. Default 1 uA.
     pub lte_current_abstol: f64,
@@ -55,15 +56,15 @@ pub struct Settings {
 impl Default for Settings {
     fn default() -> Self {
         Self {
-            max_step_s: 100e-6,
+            max_step_s: 500e-6,
             min_step_s: 1e-12,
             restart_step_s: 1e-6,
             reltol: 1e-4,
             voltage_abstol: 1e-6,
             current_abstol: 1e-9,
-            lte_reltol: 1e-4,
+            lte_reltol: 5e-4,
             lte_voltage_abstol: 1e-4,
-            lte_current_abstol: 1e-7,
+            lte_current_abstol: 1e-6,
             max_newton_iterations: 50,
             max_operating_point_iterations: 200,
             event_tolerance_s: 1e-6,
@@ -179,6 +180,8 @@ pub struct SimState {
     points_since_break: usize,
     /// Proposed length of the next step, seconds.
     step: f64,
+    /// The last attempted step was rejected by the truncation-error test.
+    just_rejected: bool,
     /// Counters since the state was created.
     pub stats: RunStats,
 }
@@ -299,6 +302,7 @@ impl Simulator {
             past_t: [0.0; 2],
             points_since_break: 1,
             step: self.settings.restart_step_s,
+            just_rejected: false,
             stats: RunStats::default(),
         }
     }
@@ -441,7 +445,7 @@ impl Simulator {
         // Junction limiting is anchored at the last accepted solution, not at the
         // extrapolated guess, so a predictor overshoot cannot start a junction far forward.
         for d in &self.network.devices {
-            d.begin_newton(&state.x, &mut self.ws.scratch);
+            d.begin_newton(&state.x, &self.ws.x_sol, &mut self.ws.scratch);
         }
         let node_count = self.network.circuit.nodes.len();
         let dim = self.network.dim();
@@ -792,6 +796,7 @@ impl Simulator {
                 let factor = 0.9 * err.max(1e-12).powf(-1.0 / 3.0);
                 if err > 1.0 {
                     state.stats.rejected_steps += 1;
+                    state.just_rejected = true;
                     state.step = h * factor.clamp(0.1, 0.5);
                     if state.step < self.settings.min_step_s {
                         let ctx = self.context(state.time + h, h, method);
@@ -799,7 +804,9 @@ impl Simulator {
                     }
                     continue;
                 }
-                growth = factor.min(2.0);
+                // Right after a rejection the estimate is least trusted: do not grow.
+                growth = factor.min(if state.just_rejected { 1.0 } else { 2.0 });
+                state.just_rejected = false;
             }
 
             let mut transition = false;

@@ -1,0 +1,154 @@
+//! The binary run as a user would: on the bundled examples and on broken fixtures.
+
+use std::path::PathBuf;
+use std::process::{Command, Output};
+
+fn sagtrip(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_sagtrip"))
+        .args(args)
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .expect("run sagtrip")
+}
+
+fn temp_path(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("sagtrip-cli-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir.join(name)
+}
+
+#[test]
+fn check_lists_parts_nodes_and_parameter_sets() {
+    let out = sagtrip(&["check", "--circuit", "examples/bridge-rectifier.toml"]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("valid"));
+    assert!(text.contains("parts (5)"));
+    assert!(text.contains("bridge"));
+    assert!(text.contains("nodes (4, gnd is the reference)"));
+    assert!(text.contains("rectifier"));
+    assert!(text.contains("used by: bridge"));
+}
+
+#[test]
+fn every_example_circuit_is_valid() {
+    for entry in std::fs::read_dir(concat!(env!("CARGO_MANIFEST_DIR"), "/examples")).unwrap() {
+        let path = entry.unwrap().path();
+        if path.extension().is_some_and(|e| e == "toml") {
+            let out = sagtrip(&["check", "--circuit", path.to_str().unwrap()]);
+            assert!(
+                out.status.success(),
+                "{}: {}",
+                path.display(),
+                String::from_utf8_lossy(&out.stderr)
+            );
+        }
+    }
+}
+
+#[test]
+fn run_writes_a_csv_trace() {
+    let trace = temp_path("bridge.csv");
+    let out = sagtrip(&[
+        "run",
+        "--circuit",
+        "examples/bridge-rectifier.toml",
+        "--duration",
+        "100ms",
+        "--trace",
+        trace.to_str().unwrap(),
+        "--probe",
+        "rail",
+        "--probe",
+        "current:load",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let csv = std::fs::read_to_string(&trace).unwrap();
+    let mut lines = csv.lines();
+    assert_eq!(lines.next().unwrap(), "time_s,rail_V,load_A");
+    let rows: Vec<Vec<f64>> = lines
+        .map(|l| l.split(',').map(|v| v.parse().unwrap()).collect())
+        .collect();
+    assert!(rows.len() > 100, "{}", rows.len());
+    let last = rows.last().unwrap();
+    assert!((last[0] - 0.1).abs() < 1e-12);
+    // Ohm's law between the two probes: the load current is rail / 100 ohm.
+    assert!((last[2] - last[1] / 100.0).abs() < 1e-9);
+    // A 12 V rms bridge: the rail sits below the 16.97 V peak minus two diode drops.
+    assert!(last[1] > 13.0 && last[1] < 16.0, "{}", last[1]);
+}
+
+#[test]
+fn run_prints_json() {
+    let out = sagtrip(&[
+        "run",
+        "--circuit",
+        "examples/rc-step.toml",
+        "--duration",
+        "6ms",
+        "--json",
+        "--probe",
+        "out",
+    ]);
+    assert!(out.status.success());
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let probe = &value["probes"][0];
+    assert_eq!(probe["probe"], "out_V");
+    // RC charge 5 ms after the step: 5 (1 - e^-5) = 4.96631 V (Hayt, Kemmerly and Durbin).
+    let final_v = probe["final"].as_f64().unwrap();
+    assert!((final_v - 4.96631).abs() < 5e-3, "{final_v}");
+    assert!(value["stats"]["accepted_steps"].as_u64().unwrap() > 10);
+}
+
+#[test]
+fn a_broken_file_fails_with_positions_and_writes_nothing() {
+    let trace = temp_path("never.csv");
+    let out = sagtrip(&[
+        "run",
+        "--circuit",
+        "tests/fixtures/rectifier-with-bad-values.toml",
+        "--trace",
+        trace.to_str().unwrap(),
+    ]);
+    assert!(!out.status.success());
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(
+        err.contains("rectifier-with-bad-values.toml:10:1: part.d1.saturation_curent"),
+        "{err}"
+    );
+    assert!(
+        err.contains(
+            "rectifier-with-bad-values.toml:20:14: part.load.resistance: must be positive"
+        ),
+        "{err}"
+    );
+    assert!(!err.contains("panicked"));
+    assert!(!trace.exists());
+}
+
+#[test]
+fn a_missing_file_and_a_bad_probe_are_clear_errors() {
+    let out = sagtrip(&["check", "--circuit", "examples/no-such-file.toml"]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("cannot read circuit file"));
+    let out = sagtrip(&[
+        "run",
+        "--circuit",
+        "examples/rc-step.toml",
+        "--probe",
+        "nowhere",
+    ]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no node named `nowhere`"));
+}
+
+#[test]
+fn help_carries_the_safety_caution() {
+    let out = sagtrip(&["--help"]);
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("mains voltage can kill"));
+}

@@ -1,0 +1,245 @@
+//! Engine behaviour: located discrete events, snapshots, allocation-free stepping,
+//! clear failures, and the linear solver against nalgebra's LU.
+
+mod common;
+
+use std::alloc::{GlobalAlloc, Layout, System};
+use std::cell::Cell;
+
+use common::{circuit, settings, simulate};
+use sagtrip::engine::{DenseLu, EventKind, Settings, SimError, Simulator, Start};
+
+/// Counts allocations per thread so a test can prove the stepping loop makes none (tests
+/// run on parallel threads of one process).
+struct CountingAllocator;
+
+thread_local! {
+    static ALLOCATIONS: Cell<usize> = const { Cell::new(0) };
+}
+
+fn allocations() -> usize {
+    ALLOCATIONS.with(Cell::get)
+}
+
+unsafe impl GlobalAlloc for CountingAllocator {
+    unsafe fn alloc(&self, layout: Layout) -> *mut u8 {
+        let _ = ALLOCATIONS.try_with(|c| c.set(c.get() + 1));
+        unsafe { System.alloc(layout) }
+    }
+    unsafe fn dealloc(&self, ptr: *mut u8, layout: Layout) {
+        unsafe { System.dealloc(ptr, layout) }
+    }
+}
+
+#[global_allocator]
+static GLOBAL: CountingAllocator = CountingAllocator;
+
+const SWITCHED: &str = r#"
+[part.control]
+kind = "voltage-source"
+pins = ["ctl", "gnd"]
+sine = { amplitude = "10V", frequency = "50Hz" }
+[part.r_ctl]
+kind = "resistor"
+pins = ["ctl", "gnd"]
+resistance = "10k"
+[part.supply]
+kind = "voltage-source"
+pins = ["vcc", "gnd"]
+dc = "12V"
+[part.r_pull]
+kind = "resistor"
+pins = ["vcc", "out"]
+resistance = "1k"
+[part.s1]
+kind = "switch"
+pins = { a = "out", b = "gnd", control_plus = "ctl", control_minus = "gnd" }
+on_voltage = "5V"
+off_voltage = "2V"
+on_resistance = "1"
+off_resistance = "1M"
+"#;
+
+#[test]
+fn switch_transitions_are_located_within_10_us() {
+    let run = simulate(SWITCHED, Start::OperatingPoint, 30e-3, settings(), &["out"]);
+    let events = &run.trace.events;
+    assert!(events.len() >= 4, "{events:?}");
+    // 10 sin(wt) rises through 5 V at asin(0.5)/w and falls through 2 V at (pi - asin 0.2)/w.
+    let w = 2.0 * std::f64::consts::PI * 50.0;
+    let close = 0.5_f64.asin() / w;
+    let open = (std::f64::consts::PI - 0.2_f64.asin()) / w;
+    assert_eq!(events[0].kind, EventKind::SwitchClosed);
+    assert_eq!(events[1].kind, EventKind::SwitchOpened);
+    assert!(
+        (events[0].time - close).abs() < 10e-6,
+        "{} vs {close}",
+        events[0].time
+    );
+    assert!(
+        (events[1].time - open).abs() < 10e-6,
+        "{} vs {open}",
+        events[1].time
+    );
+    assert!((events[2].time - close - 0.02).abs() < 10e-6);
+    // While closed the output is pulled to 12 * 1/(1k + 1) V.
+    let mid = run.at("out", 5e-3);
+    assert!((mid - 12.0 / 1001.0).abs() < 1e-6, "{mid}");
+}
+
+#[test]
+fn a_cloned_state_resumes_exactly() {
+    let circuit = circuit(SWITCHED);
+    let mut sim = Simulator::new(&circuit, settings());
+    let mut state = sim.start(Start::OperatingPoint).unwrap();
+    sim.advance(&mut state, 7e-3, &mut ()).unwrap();
+    let snapshot = state.clone();
+    sim.advance(&mut state, 40e-3, &mut ()).unwrap();
+    // A second simulator (as a sweep worker would have) resumes the snapshot.
+    let mut other = Simulator::new(&circuit, settings());
+    let mut resumed = snapshot.clone();
+    other.advance(&mut resumed, 40e-3, &mut ()).unwrap();
+    assert_eq!(state.solution(), resumed.solution());
+    assert_eq!(state.time, resumed.time);
+}
+
+#[test]
+fn stepping_allocates_nothing() {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/transformer-supply.toml"
+    ))
+    .unwrap();
+    let circuit = circuit(&text);
+    let mut sim = Simulator::new(&circuit, settings());
+    let mut state = sim.start(Start::Rest).unwrap();
+    sim.advance(&mut state, 5e-3, &mut ()).unwrap();
+    let before = allocations();
+    sim.advance(&mut state, 100e-3, &mut ()).unwrap();
+    let after = allocations();
+    assert!(state.stats.accepted_steps > 500);
+    assert_eq!(after - before, 0, "allocations during 95 ms of stepping");
+}
+
+#[test]
+fn an_undetermined_node_is_named() {
+    // 1 A forced into a reverse-biased diode with no breakdown: nothing can carry it.
+    let text = r#"
+[part.pump]
+kind = "current-source"
+pins = ["gnd", "k"]
+dc = "1A"
+[part.d1]
+kind = "diode"
+pins = { anode = "gnd", cathode = "k" }
+"#;
+    let circuit = circuit(text);
+    let mut sim = Simulator::new(&circuit, settings());
+    let error = sim.start(Start::OperatingPoint).unwrap_err();
+    let message = error.to_string();
+    assert!(
+        message.contains("node `k`") || message.contains("part `d1`"),
+        "{message}"
+    );
+    assert!(matches!(
+        error,
+        SimError::Singular { .. } | SimError::OperatingPoint(_)
+    ));
+}
+
+#[test]
+fn operating_point_of_a_diode_string_converges() {
+    // Ten diodes in series from 230 V peak through 100 ohm: hard for plain Newton from zero.
+    let mut text = String::from(
+        "[part.supply]\nkind = \"voltage-source\"\npins = [\"n0\", \"gnd\"]\ndc = 325\n\
+         [part.r1]\nkind = \"resistor\"\npins = [\"n0\", \"n1\"]\nresistance = 100\n",
+    );
+    for k in 1..=10 {
+        let next = if k == 10 {
+            "gnd".to_string()
+        } else {
+            format!("n{}", k + 1)
+        };
+        text += &format!(
+            "[part.d{k}]\nkind = \"diode\"\npins = [\"n{k}\", \"{next}\"]\nsaturation_current = \"1f\"\n"
+        );
+    }
+    let run = simulate(
+        &text,
+        Start::OperatingPoint,
+        1e-6,
+        settings(),
+        &["n1", "current:r1"],
+    );
+    let i = run.column("current:r1")[0];
+    // KVL: 325 = 100 I + 10 Vt ln(I/Is + 1).
+    let vt = sagtrip::circuit::THERMAL_VOLTAGE;
+    let residual = 325.0 - 100.0 * i - 10.0 * vt * (i / 1e-15 + 1.0).ln();
+    assert!(residual.abs() < 1e-3, "residual {residual} V at I = {i}");
+}
+
+#[test]
+fn dense_lu_agrees_with_nalgebra() {
+    // A deterministic, diagonally weak, nonsymmetric matrix that needs pivoting.
+    let n = 12;
+    let dim = n + 1;
+    let mut a = vec![0.0; dim * dim];
+    let mut seed: u64 = 12345;
+    let mut next = || {
+        seed = seed
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        ((seed >> 11) as f64 / (1u64 << 53) as f64) * 2.0 - 1.0
+    };
+    let mut reference = nalgebra::DMatrix::<f64>::zeros(n, n);
+    for i in 1..dim {
+        for j in 1..dim {
+            let v = next() * if i == j { 0.01 } else { 1.0 };
+            a[i * dim + j] = v;
+            reference[(i - 1, j - 1)] = v;
+        }
+    }
+    let b: Vec<f64> = (0..dim)
+        .map(|i| if i == 0 { 0.0 } else { next() })
+        .collect();
+    let mut lu = DenseLu::new(dim);
+    lu.factor(&mut a).unwrap();
+    let mut x = b.clone();
+    let mut work = vec![0.0; dim];
+    lu.solve(&a, &mut x, &mut work);
+    let rhs = nalgebra::DVector::from_iterator(n, b[1..].iter().copied());
+    let expected = reference.lu().solve(&rhs).unwrap();
+    for i in 0..n {
+        assert!(
+            (x[i + 1] - expected[i]).abs() < 1e-10 * (1.0 + expected[i].abs()),
+            "{i}: {} vs {}",
+            x[i + 1],
+            expected[i]
+        );
+    }
+}
+
+#[test]
+fn a_singular_matrix_is_reported() {
+    let dim = 3;
+    // Two identical rows.
+    let mut a = vec![0.0, 0.0, 0.0, 0.0, 1.0, 2.0, 0.0, 2.0, 4.0];
+    let mut lu = DenseLu::new(dim);
+    assert!(lu.factor(&mut a).is_err());
+}
+
+#[test]
+fn tighter_settings_are_honoured() {
+    let s = Settings {
+        max_step_s: 10e-6,
+        ..Settings::default()
+    };
+    let run = simulate(SWITCHED, Start::OperatingPoint, 10e-3, s, &["out"]);
+    let widest = run
+        .trace
+        .time
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .fold(0.0, f64::max);
+    assert!(widest <= 10e-6 * (1.0 + 1e-9), "{widest}");
+}
