@@ -121,7 +121,7 @@ pub(crate) enum Device {
         b: usize,
         capacitance: f64,
         initial_voltage: f64,
-        /// History slots: [voltage, current].
+        /// History slots: [voltage, current, previous current].
         hist: usize,
     },
     /// One inductor or a set of coupled windings.
@@ -184,7 +184,7 @@ impl Device {
                 capacitance,
                 hist: h,
                 ..
-            } => passive::stamp_capacitor(m, ctx, *a, *b, *capacitance, &hist[*h..*h + 2]),
+            } => passive::stamp_capacitor(m, ctx, *a, *b, *capacitance, &hist[*h..*h + 3]),
             Device::Windings(w) => w.stamp(m, ctx, hist),
             Device::VoltageSource {
                 p,
@@ -285,7 +285,7 @@ impl Device {
                 capacitance,
                 hist: h,
                 ..
-            } => passive::commit_capacitor(ctx, x[*a] - x[*b], *capacitance, &mut hist[*h..*h + 2]),
+            } => passive::commit_capacitor(ctx, x[*a] - x[*b], *capacitance, &mut hist[*h..*h + 3]),
             Device::Windings(w) => w.commit(ctx, x, hist),
             _ => {}
         }
@@ -302,6 +302,7 @@ impl Device {
             } => {
                 hist[*h] = *initial_voltage;
                 hist[*h + 1] = 0.0;
+                hist[*h + 2] = 0.0;
             }
             Device::Windings(w) => w.rest_history(hist),
             _ => {}
@@ -314,6 +315,7 @@ impl Device {
             Device::Capacitor { a, b, hist: h, .. } => {
                 hist[*h] = x[*a] - x[*b];
                 hist[*h + 1] = 0.0;
+                hist[*h + 2] = 0.0;
             }
             Device::Windings(w) => w.steady_history(x, hist),
             _ => {}
@@ -400,17 +402,75 @@ impl Device {
         }
     }
 
-    /// Quantities whose local truncation error controls the step: (first index, second
-    /// index, is a current). A voltage is `x[first] - x[second]`; a current is `x[first]`.
-    pub fn error_probes(&self, out: &mut Vec<(usize, usize, bool)>) {
-        match self {
-            Device::Capacitor { a, b, .. } => out.push((*a, *b, false)),
-            Device::Windings(w) => {
-                for &branch in &w.branch[..w.count] {
-                    out.push((branch, 0, true));
-                }
+    /// Whether a junction switched between blocking and conducting during a step from
+    /// `x_old` to `x_new`: its current crossed `on_current` (forward or reverse). Such a
+    /// step holds a corner the trapezoidal rule integrates badly; the engine shortens it
+    /// and restarts after it.
+    pub fn switched(&self, x_old: &[f64], x_new: &[f64], on_current: f64) -> bool {
+        let Device::Diode {
+            inner,
+            cathode,
+            junction,
+            ..
+        } = self
+        else {
+            return false;
+        };
+        let regime = |x: &[f64]| {
+            let i = junction.current(x[*inner] - x[*cathode]).0;
+            if i > on_current {
+                1
+            } else if i < -on_current {
+                -1
+            } else {
+                0
             }
-            _ => {}
+        };
+        regime(x_old) != regime(x_new)
+    }
+
+    /// The trapezoidal truncation error of a step to `x` estimated from the device's own
+    /// derivative history, as (error, magnitude it is relative to, absolute tolerance);
+    /// `None` for devices without integrated state. A capacitor reports its voltage error
+    /// (volts), a winding its flux error (webers, absolute tolerance `L` times the current
+    /// tolerance). `dt_prev` is the previous step's length.
+    pub fn derivative_error(
+        &self,
+        ctx: &SolveContext,
+        x: &[f64],
+        hist: &[f64],
+        dt_prev: f64,
+        voltage_abstol: f64,
+        current_abstol: f64,
+    ) -> Option<(f64, f64, f64)> {
+        match self {
+            Device::Capacitor {
+                a,
+                b,
+                capacitance,
+                hist: h,
+                ..
+            } => {
+                let v = x[*a] - x[*b];
+                let e = passive::capacitor_error(ctx, v, *capacitance, &hist[*h..*h + 3], dt_prev);
+                Some((e, v.abs().max(hist[*h].abs()), voltage_abstol))
+            }
+            Device::Windings(w) => {
+                let (e, flux, l) = w.error(ctx, x, hist, dt_prev);
+                Some((e, flux, l * current_abstol))
+            }
+            _ => None,
+        }
+    }
+
+    /// Quantities whose local truncation error the engine estimates by divided differences
+    /// of the solution: (first index, second index, is a current). A voltage is
+    /// `x[first] - x[second]`. Windings are checked on their fluxes by
+    /// [`Device::derivative_error`] alone: an open winding's current says nothing of its
+    /// flux.
+    pub fn error_probes(&self, out: &mut Vec<(usize, usize, bool)>) {
+        if let Device::Capacitor { a, b, .. } = self {
+            out.push((*a, *b, false));
         }
     }
 }

@@ -93,7 +93,7 @@ impl Network {
                         },
                         1.0,
                     );
-                    history_len += 2;
+                    history_len += 3;
                 }
                 PartSpec::Inductor {
                     inductance,
@@ -118,7 +118,7 @@ impl Network {
                         }),
                         1.0,
                     );
-                    history_len += 2;
+                    history_len += 3;
                 }
                 PartSpec::Transformer(t) => {
                     let b1 = new_unknown(
@@ -145,7 +145,7 @@ impl Network {
                         }),
                         1.0,
                     );
-                    history_len += 4;
+                    history_len += 6;
                 }
                 PartSpec::VoltageSource(waveform) => {
                     let branch = new_unknown(
