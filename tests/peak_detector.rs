@@ -85,15 +85,6 @@ resistance = {R}
     let mut worst = 0.0_f64;
     for (k, y) in reference.y.iter().enumerate() {
         worst = worst.max((simulated[k] - y[0]).abs());
-        if std::env::var("PD").is_ok() {
-            eprintln!(
-                "{:.6} {:.5} {:.5} {:.2e}",
-                times[k],
-                simulated[k],
-                y[0],
-                simulated[k] - y[0]
-            );
-        }
     }
     // 0.1% of the 10 V peak.
     assert!(worst < 0.01, "worst difference {worst} V");
