@@ -91,6 +91,18 @@ pub enum PartSpec {
     Bridge(DiodeParams),
     /// Voltage-controlled switch with hysteresis.
     Switch(SwitchParams),
+    /// Behavioural comparator.
+    Comparator(ComparatorParams),
+    /// Square-law MOSFET, N or P channel.
+    Mosfet(MosfetParams),
+    /// Ebers-Moll bipolar transistor, NPN or PNP.
+    Bipolar(BipolarParams),
+    /// Behavioural linear regulator.
+    Regulator(RegulatorParams),
+    /// Relay: coil, armature and a change-over contact set.
+    Relay(RelayParams),
+    /// Behavioural timer for astable and monostable circuits.
+    Timer(TimerParams),
 }
 
 impl PartSpec {
@@ -106,6 +118,24 @@ impl PartSpec {
             PartSpec::Diode(_) => "diode",
             PartSpec::Bridge(_) => "bridge",
             PartSpec::Switch(_) => "switch",
+            PartSpec::Comparator(_) => "comparator",
+            PartSpec::Mosfet(m) => {
+                if m.polarity > 0.0 {
+                    "nmos"
+                } else {
+                    "pmos"
+                }
+            }
+            PartSpec::Bipolar(b) => {
+                if b.polarity > 0.0 {
+                    "npn"
+                } else {
+                    "pnp"
+                }
+            }
+            PartSpec::Regulator(_) => "regulator",
+            PartSpec::Relay(_) => "relay",
+            PartSpec::Timer(_) => "timer",
         }
     }
 
@@ -125,6 +155,26 @@ pub fn pin_names_of(kind: &str) -> Option<&'static [&'static str]> {
         "diode" | "led" => &["anode", "cathode"],
         "bridge" => &["ac_a", "ac_b", "dc_plus", "dc_minus"],
         "switch" => &["a", "b", "control_plus", "control_minus"],
+        "comparator" => &["plus", "minus", "output", "supply_plus", "supply_minus"],
+        "nmos" | "pmos" => &["drain", "gate", "source"],
+        "npn" | "pnp" => &["collector", "base", "emitter"],
+        "regulator" => &["input", "output", "common"],
+        "relay" => &[
+            "coil_a",
+            "coil_b",
+            "common",
+            "normally_open",
+            "normally_closed",
+        ],
+        "timer" => &[
+            "supply_plus",
+            "supply_minus",
+            "trigger",
+            "threshold",
+            "reset",
+            "output",
+            "discharge",
+        ],
         _ => return None,
     })
 }
@@ -180,6 +230,112 @@ pub struct SwitchParams {
     pub on_resistance: f64,
     /// Open resistance, ohms.
     pub off_resistance: f64,
+}
+
+/// Behavioural comparator parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ComparatorParams {
+    /// Output low level above the negative supply pin, volts.
+    pub low_headroom: f64,
+    /// Output high level below the positive supply pin, volts.
+    pub high_headroom: f64,
+    /// Open-loop gain at the threshold (slope of the transfer), volts per volt.
+    pub gain: f64,
+    /// Output resistance, ohms.
+    pub output_resistance: f64,
+    /// Time constant of the first-order output lag, seconds.
+    pub response_time: f64,
+    /// Input offset: the output switches at v(plus) - v(minus) = offset, volts.
+    pub input_offset: f64,
+    /// Built-in hysteresis band (full width), volts; 0 for none.
+    pub hysteresis: f64,
+}
+
+/// Square-law MOSFET parameters (Shichman-Hodges).
+#[derive(Clone, Debug, PartialEq)]
+pub struct MosfetParams {
+    /// +1 for N channel, -1 for P channel.
+    pub polarity: f64,
+    /// Threshold voltage magnitude, volts.
+    pub threshold_voltage: f64,
+    /// Transconductance factor K (saturation current (K/2)(Vgs - Vth)^2), A/V^2.
+    pub transconductance: f64,
+    /// Channel-length modulation lambda, 1/V.
+    pub channel_length_modulation: f64,
+    /// Body diode (source to drain for N channel), if present.
+    pub body_diode: Option<DiodeParams>,
+}
+
+/// Ebers-Moll transport-model bipolar transistor parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub struct BipolarParams {
+    /// +1 for NPN, -1 for PNP.
+    pub polarity: f64,
+    /// Transport saturation current Is, amperes.
+    pub saturation_current: f64,
+    /// Forward current gain beta_F.
+    pub forward_beta: f64,
+    /// Reverse current gain beta_R.
+    pub reverse_beta: f64,
+}
+
+/// Behavioural linear regulator parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RegulatorParams {
+    /// Regulated output voltage above the common pin, volts.
+    pub output_voltage: f64,
+    /// Dropout: the output cannot rise above input minus this, volts.
+    pub dropout_voltage: f64,
+    /// Current drawn from the input to the common pin while powered, amperes.
+    pub quiescent_current: f64,
+    /// Largest output current, amperes.
+    pub current_limit: f64,
+    /// Output resistance while regulating, ohms.
+    pub output_resistance: f64,
+}
+
+/// Relay parameters.
+#[derive(Clone, Debug, PartialEq)]
+pub struct RelayParams {
+    /// Coil resistance, ohms.
+    pub coil_resistance: f64,
+    /// Coil inductance, henries.
+    pub coil_inductance: f64,
+    /// The armature picks up when the coil current rises through this, amperes.
+    pub pickup_current: f64,
+    /// The armature drops out when the coil current falls through this, amperes.
+    pub dropout_current: f64,
+    /// Time from pick-up to the normally-open contact making, seconds.
+    pub close_travel: f64,
+    /// Time from drop-out to the normally-open contact breaking, seconds.
+    pub open_travel: f64,
+    /// Number of bounces of a closing contact.
+    pub bounce_count: u32,
+    /// Time within which the bounces happen, seconds.
+    pub bounce_time: f64,
+    /// Closed contact resistance, ohms.
+    pub contact_resistance: f64,
+    /// Open contact resistance, ohms.
+    pub open_resistance: f64,
+    /// Whether the normally-closed pin is connected (it may be left out).
+    pub normally_closed_connected: bool,
+}
+
+/// Behavioural timer parameters (the classic 1/3, 2/3 supply arrangement).
+#[derive(Clone, Debug, PartialEq)]
+pub struct TimerParams {
+    /// Output high level below the positive supply, volts.
+    pub high_headroom: f64,
+    /// Output low level above the negative supply, volts.
+    pub low_headroom: f64,
+    /// Output resistance, ohms.
+    pub output_resistance: f64,
+    /// Discharge switch on resistance, ohms.
+    pub discharge_resistance: f64,
+    /// The reset pin resets the flip-flop below this (above the negative supply), volts.
+    pub reset_voltage: f64,
+    /// Supply current drawn while powered, amperes.
+    pub supply_current: f64,
 }
 
 impl Circuit {

@@ -12,8 +12,9 @@ use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
 use crate::circuit::{
-    pin_names_of, Breakdown, Circuit, DiodeParams, NodeId, ParameterSetInfo, Part, PartSpec,
-    SwitchParams, TransformerParams, GROUND, THERMAL_VOLTAGE,
+    pin_names_of, BipolarParams, Breakdown, Circuit, ComparatorParams, DiodeParams, MosfetParams,
+    NodeId, ParameterSetInfo, Part, PartSpec, RegulatorParams, RelayParams, SwitchParams,
+    TimerParams, TransformerParams, GROUND, THERMAL_VOLTAGE,
 };
 use crate::units::{parse_value, Quantity};
 use crate::waveform::Waveform;
@@ -242,6 +243,109 @@ const SWITCH_FIELDS: &[Field] = &[
     with_default("on_resistance", Quantity::Resistance, Rule::Positive, 1.0),
     with_default("off_resistance", Quantity::Resistance, Rule::Positive, 1e9),
 ];
+const COMPARATOR_FIELDS: &[Field] = &[
+    with_default("low_headroom", Quantity::Voltage, Rule::NonNegative, 0.05),
+    with_default("high_headroom", Quantity::Voltage, Rule::NonNegative, 1.5),
+    with_default("gain", Quantity::Ratio, Rule::Positive, 1e5),
+    with_default(
+        "output_resistance",
+        Quantity::Resistance,
+        Rule::Positive,
+        100.0,
+    ),
+    with_default("response_time", Quantity::Time, Rule::Positive, 1e-6),
+    with_default("input_offset", Quantity::Voltage, Rule::Any, 0.0),
+    with_default("hysteresis", Quantity::Voltage, Rule::NonNegative, 0.0),
+];
+const MOSFET_FIELDS: &[Field] = &[
+    field("threshold_voltage", Quantity::Voltage, Rule::Positive),
+    field(
+        "transconductance",
+        Quantity::Transconductance,
+        Rule::Positive,
+    ),
+    with_default(
+        "channel_length_modulation",
+        Quantity::Ratio,
+        Rule::NonNegative,
+        0.0,
+    ),
+    with_default("body_diode", Quantity::Flag, Rule::Any, 1.0),
+    with_default(
+        "body_diode_saturation_current",
+        Quantity::Current,
+        Rule::Positive,
+        1e-12,
+    ),
+    with_default(
+        "body_diode_emission_coefficient",
+        Quantity::Ratio,
+        Rule::Positive,
+        1.0,
+    ),
+];
+const BIPOLAR_FIELDS: &[Field] = &[
+    with_default(
+        "saturation_current",
+        Quantity::Current,
+        Rule::Positive,
+        1e-14,
+    ),
+    with_default("forward_beta", Quantity::Ratio, Rule::Positive, 100.0),
+    with_default("reverse_beta", Quantity::Ratio, Rule::Positive, 1.0),
+];
+const REGULATOR_FIELDS: &[Field] = &[
+    field("output_voltage", Quantity::Voltage, Rule::Positive),
+    field("dropout_voltage", Quantity::Voltage, Rule::NonNegative),
+    with_default(
+        "quiescent_current",
+        Quantity::Current,
+        Rule::NonNegative,
+        0.0,
+    ),
+    with_default("current_limit", Quantity::Current, Rule::Positive, 1.0),
+    with_default(
+        "output_resistance",
+        Quantity::Resistance,
+        Rule::Positive,
+        0.05,
+    ),
+];
+const RELAY_FIELDS: &[Field] = &[
+    field("coil_resistance", Quantity::Resistance, Rule::Positive),
+    field("coil_inductance", Quantity::Inductance, Rule::Positive),
+    field("pickup_current", Quantity::Current, Rule::Positive),
+    field("dropout_current", Quantity::Current, Rule::Positive),
+    with_default("close_travel", Quantity::Time, Rule::NonNegative, 0.0),
+    with_default("open_travel", Quantity::Time, Rule::NonNegative, 0.0),
+    with_default("bounce_count", Quantity::Count, Rule::NonNegative, 0.0),
+    with_default("bounce_time", Quantity::Time, Rule::NonNegative, 0.0),
+    with_default(
+        "contact_resistance",
+        Quantity::Resistance,
+        Rule::Positive,
+        0.05,
+    ),
+    with_default("open_resistance", Quantity::Resistance, Rule::Positive, 1e9),
+];
+const TIMER_FIELDS: &[Field] = &[
+    with_default("high_headroom", Quantity::Voltage, Rule::NonNegative, 1.7),
+    with_default("low_headroom", Quantity::Voltage, Rule::NonNegative, 0.1),
+    with_default(
+        "output_resistance",
+        Quantity::Resistance,
+        Rule::Positive,
+        10.0,
+    ),
+    with_default(
+        "discharge_resistance",
+        Quantity::Resistance,
+        Rule::Positive,
+        10.0,
+    ),
+    with_default("reset_voltage", Quantity::Voltage, Rule::Positive, 0.7),
+    with_default("supply_current", Quantity::Current, Rule::NonNegative, 0.0),
+];
 const SINE_FIELDS: &[Field] = &[
     optional("amplitude", Quantity::Ratio, Rule::Any),
     optional("rms", Quantity::Ratio, Rule::Any),
@@ -265,6 +369,12 @@ fn fields_of(kind: &str) -> &'static [Field] {
         "diode" | "bridge" => DIODE_FIELDS,
         "led" => LED_FIELDS,
         "switch" => SWITCH_FIELDS,
+        "comparator" => COMPARATOR_FIELDS,
+        "nmos" | "pmos" => MOSFET_FIELDS,
+        "npn" | "pnp" => BIPOLAR_FIELDS,
+        "regulator" => REGULATOR_FIELDS,
+        "relay" => RELAY_FIELDS,
+        "timer" => TIMER_FIELDS,
         _ => &[],
     }
 }
@@ -275,6 +385,9 @@ fn family_of(kind: &str) -> Option<&'static str> {
         "diode" | "bridge" => Some("diode"),
         "led" => Some("led"),
         "switch" => Some("switch"),
+        "comparator" | "nmos" | "pmos" | "npn" | "pnp" | "regulator" | "relay" | "timer" => {
+            PART_KINDS.iter().find(|k| **k == kind).copied()
+        }
         _ => None,
     }
 }
@@ -290,8 +403,28 @@ const PART_KINDS: &[&str] = &[
     "led",
     "bridge",
     "switch",
+    "comparator",
+    "nmos",
+    "pmos",
+    "npn",
+    "pnp",
+    "regulator",
+    "relay",
+    "timer",
 ];
-const SET_FAMILIES: &[&str] = &["diode", "led", "switch"];
+const SET_FAMILIES: &[&str] = &[
+    "diode",
+    "led",
+    "switch",
+    "comparator",
+    "nmos",
+    "pmos",
+    "npn",
+    "pnp",
+    "regulator",
+    "relay",
+    "timer",
+];
 
 /// A parameter value read from the file, with where it was written.
 #[derive(Clone)]
@@ -499,6 +632,14 @@ impl Reader<'_> {
             let Some(v) = self.number(value, &field_path, spec.quantity) else {
                 continue;
             };
+            if spec.quantity == Quantity::Count && (v.fract() != 0.0 || v < 0.0) {
+                self.problem(
+                    value.span(),
+                    &field_path,
+                    format!("must be a whole number, got {v}"),
+                );
+                continue;
+            }
             let ok = match spec.rule {
                 Rule::Any => true,
                 Rule::Positive => v > 0.0,
@@ -642,7 +783,8 @@ impl Reader<'_> {
             ),
             Some(v) => match v.get_ref() {
                 DeValue::Array(list) => {
-                    if list.len() != pin_names.len() {
+                    let optional_last = kind == "relay" && list.len() + 1 == pin_names.len();
+                    if list.len() != pin_names.len() && !optional_last {
                         self.problem(
                             v.span(),
                             &format!("{path}.pins"),
@@ -685,7 +827,9 @@ impl Reader<'_> {
                     let missing: Vec<&str> = pin_names
                         .iter()
                         .zip(&pins)
-                        .filter(|(_, p)| p.is_none())
+                        .filter(|(n, p)| {
+                            p.is_none() && !(kind == "relay" && **n == "normally_closed")
+                        })
                         .map(|(n, _)| *n)
                         .collect();
                     if !missing.is_empty() && self.problems.len() == problems_before {
@@ -793,7 +937,15 @@ impl Reader<'_> {
         if self.problems.len() > problems_before {
             return None;
         }
-        let spec = self.spec(&kind, &values, waveform, name.span(), &path)?;
+        // A relay's normally-closed contact may be left unconnected.
+        let normally_closed_absent = kind == "relay" && pins[4].is_none();
+        if normally_closed_absent {
+            pins[4] = Some((0, 0..0));
+        }
+        let mut spec = self.spec(&kind, &values, waveform, name.span(), &path)?;
+        if let PartSpec::Relay(r) = &mut spec {
+            r.normally_closed_connected = !normally_closed_absent;
+        }
         let origin = PartOrigin {
             name_span: name.span(),
             pin_spans: pins
@@ -1068,6 +1220,85 @@ impl Reader<'_> {
                     off_resistance: get("off_resistance"),
                 })
             }
+            "comparator" => PartSpec::Comparator(ComparatorParams {
+                low_headroom: get("low_headroom"),
+                high_headroom: get("high_headroom"),
+                gain: get("gain"),
+                output_resistance: get("output_resistance"),
+                response_time: get("response_time"),
+                input_offset: get("input_offset"),
+                hysteresis: get("hysteresis"),
+            }),
+            "nmos" | "pmos" => PartSpec::Mosfet(MosfetParams {
+                polarity: if kind == "nmos" { 1.0 } else { -1.0 },
+                threshold_voltage: get("threshold_voltage"),
+                transconductance: get("transconductance"),
+                channel_length_modulation: get("channel_length_modulation"),
+                body_diode: (get("body_diode") != 0.0).then(|| DiodeParams {
+                    saturation_current: get("body_diode_saturation_current"),
+                    emission_coefficient: get("body_diode_emission_coefficient"),
+                    series_resistance: 0.0,
+                    breakdown: None,
+                }),
+            }),
+            "npn" | "pnp" => PartSpec::Bipolar(BipolarParams {
+                polarity: if kind == "npn" { 1.0 } else { -1.0 },
+                saturation_current: get("saturation_current"),
+                forward_beta: get("forward_beta"),
+                reverse_beta: get("reverse_beta"),
+            }),
+            "regulator" => PartSpec::Regulator(RegulatorParams {
+                output_voltage: get("output_voltage"),
+                dropout_voltage: get("dropout_voltage"),
+                quiescent_current: get("quiescent_current"),
+                current_limit: get("current_limit"),
+                output_resistance: get("output_resistance"),
+            }),
+            "relay" => {
+                let (pickup, dropout) = (get("pickup_current"), get("dropout_current"));
+                if dropout >= pickup {
+                    self.problem(
+                        values
+                            .get("dropout_current")
+                            .map_or(name_span, |l| l.span.clone()),
+                        &format!("{path}.dropout_current"),
+                        format!("must be below pickup_current ({pickup} A)"),
+                    );
+                    return None;
+                }
+                let bounce_count = get("bounce_count");
+                if bounce_count > 0.0 && get("bounce_time") <= 0.0 {
+                    self.problem(
+                        values
+                            .get("bounce_count")
+                            .map_or(name_span, |l| l.span.clone()),
+                        &format!("{path}.bounce_time"),
+                        "bounces need a positive bounce_time",
+                    );
+                    return None;
+                }
+                PartSpec::Relay(RelayParams {
+                    coil_resistance: get("coil_resistance"),
+                    coil_inductance: get("coil_inductance"),
+                    pickup_current: pickup,
+                    dropout_current: dropout,
+                    close_travel: get("close_travel"),
+                    open_travel: get("open_travel"),
+                    bounce_count: bounce_count as u32,
+                    bounce_time: get("bounce_time"),
+                    contact_resistance: get("contact_resistance"),
+                    open_resistance: get("open_resistance"),
+                    normally_closed_connected: true,
+                })
+            }
+            "timer" => PartSpec::Timer(TimerParams {
+                high_headroom: get("high_headroom"),
+                low_headroom: get("low_headroom"),
+                output_resistance: get("output_resistance"),
+                discharge_resistance: get("discharge_resistance"),
+                reset_voltage: get("reset_voltage"),
+                supply_current: get("supply_current"),
+            }),
             _ => return None,
         })
     }
@@ -1163,6 +1394,13 @@ fn conductive_pairs(spec: &PartSpec) -> Vec<(usize, usize)> {
         PartSpec::Transformer(_) => vec![(0, 1), (2, 3)],
         PartSpec::Bridge(_) => vec![(0, 2), (1, 2), (0, 3)],
         PartSpec::Switch(_) => vec![(0, 1), (2, 3)],
+        // Inputs draw no current; the output is driven from ground, the supply pins conduct.
+        PartSpec::Comparator(_) => vec![(2, 4), (3, 4)],
+        PartSpec::Mosfet(_) | PartSpec::Bipolar(_) => vec![(0, 2), (1, 2)],
+        PartSpec::Regulator(_) => vec![(0, 2), (1, 2)],
+        PartSpec::Relay(r) if r.normally_closed_connected => vec![(0, 1), (2, 3), (2, 4)],
+        PartSpec::Relay(_) => vec![(0, 1), (2, 3)],
+        PartSpec::Timer(_) => vec![(0, 1), (5, 1), (6, 1), (2, 1), (3, 1), (4, 1)],
         _ => vec![(0, 1)],
     }
 }
@@ -1171,6 +1409,7 @@ fn conductive_pairs(spec: &PartSpec) -> Vec<(usize, usize)> {
 fn stiff_branches(spec: &PartSpec) -> Vec<(usize, usize)> {
     match spec {
         PartSpec::VoltageSource(_) => vec![(0, 1)],
+        PartSpec::Relay(_) => Vec::new(),
         PartSpec::Inductor {
             series_resistance, ..
         } if *series_resistance == 0.0 => vec![(0, 1)],

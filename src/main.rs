@@ -149,6 +149,42 @@ fn part_summary(spec: &PartSpec) -> String {
             e(s.on_voltage, Voltage),
             e(s.off_voltage, Voltage)
         ),
+        PartSpec::Comparator(c) => format!(
+            "gain {:e}, lag {}, hysteresis {}",
+            c.gain,
+            e(c.response_time, Time),
+            e(c.hysteresis, Voltage)
+        ),
+        PartSpec::Mosfet(m) => format!(
+            "Vth {}, K {}{}",
+            e(m.threshold_voltage, Voltage),
+            e(m.transconductance, Transconductance),
+            if m.body_diode.is_some() {
+                ", body diode"
+            } else {
+                ""
+            }
+        ),
+        PartSpec::Bipolar(b) => format!(
+            "Is {}, beta F {}, beta R {}",
+            e(b.saturation_current, Current),
+            b.forward_beta,
+            b.reverse_beta
+        ),
+        PartSpec::Regulator(r) => format!(
+            "{} out, dropout {}, limit {}",
+            e(r.output_voltage, Voltage),
+            e(r.dropout_voltage, Voltage),
+            e(r.current_limit, Current)
+        ),
+        PartSpec::Relay(r) => format!(
+            "coil {} / {}, pick-up {}, drop-out {}",
+            e(r.coil_resistance, Resistance),
+            e(r.coil_inductance, Inductance),
+            e(r.pickup_current, Current),
+            e(r.dropout_current, Current)
+        ),
+        PartSpec::Timer(_) => "1/3 and 2/3 supply thresholds".to_string(),
     }
 }
 
@@ -166,6 +202,9 @@ fn check(path: &Path) -> Result<String, String> {
             .pin_names()
             .iter()
             .zip(&part.pins)
+            .filter(|(pin, _)| {
+                !matches!(&part.spec, PartSpec::Relay(r) if **pin == "normally_closed" && !r.normally_closed_connected)
+            })
             .map(|(pin, &node)| format!("{pin}={}", circuit.nodes[node]))
             .collect();
         say!(
@@ -186,7 +225,11 @@ fn check(path: &Path) -> Result<String, String> {
         let users: Vec<&str> = circuit
             .parts
             .iter()
-            .filter(|p| p.pins.contains(&i))
+            .filter(|p| {
+                p.pins.iter().enumerate().any(|(k, &n)| {
+                    n == i && !matches!(&p.spec, PartSpec::Relay(r) if k == 4 && !r.normally_closed_connected)
+                })
+            })
             .map(|p| p.name.as_str())
             .collect();
         say!(out, "  {:<14} {}", node, users.join(", "));

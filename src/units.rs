@@ -31,6 +31,10 @@ pub enum Quantity {
     Transconductance,
     /// A plain number with no unit.
     Ratio,
+    /// A yes/no setting, written as a TOML boolean.
+    Flag,
+    /// A whole count.
+    Count,
 }
 
 impl Quantity {
@@ -47,7 +51,7 @@ impl Quantity {
             Quantity::Angle => &["deg"],
             Quantity::Conductance => &["S"],
             Quantity::Transconductance => &["A/V2", "A/V^2"],
-            Quantity::Ratio => &[],
+            Quantity::Ratio | Quantity::Flag | Quantity::Count => &[],
         }
     }
 
@@ -64,7 +68,7 @@ impl Quantity {
             Quantity::Angle => "deg",
             Quantity::Conductance => "S",
             Quantity::Transconductance => "A/V2",
-            Quantity::Ratio => "",
+            Quantity::Ratio | Quantity::Flag | Quantity::Count => "",
         }
     }
 }
@@ -143,7 +147,7 @@ pub fn parse_value(text: &str, quantity: Quantity) -> Result<f64, ValueError> {
                 return Err(ValueError::UnknownSuffix {
                     text: text.to_string(),
                     suffix: rest.to_string(),
-                    unit: if quantity == Quantity::Ratio {
+                    unit: if quantity.units().is_empty() {
                         "none"
                     } else {
                         quantity.symbol()

@@ -14,7 +14,7 @@ const EXP_LIMIT: f64 = 80.0;
 
 /// `exp(x)` and its derivative, continued linearly above [`EXP_LIMIT`].
 #[inline]
-fn limited_exp(x: f64) -> (f64, f64) {
+pub(super) fn limited_exp(x: f64) -> (f64, f64) {
     if x > EXP_LIMIT {
         let e = EXP_LIMIT.exp();
         (e * (1.0 + x - EXP_LIMIT), e)
@@ -37,7 +37,7 @@ pub(crate) struct Junction {
 /// The classic p-n junction voltage limiting: a large forward step is replaced by the
 /// step the exponential's logarithm would take.
 #[inline]
-fn limit_junction(v_new: f64, v_old: f64, n_vt: f64, v_crit: f64) -> f64 {
+pub(super) fn limit_junction(v_new: f64, v_old: f64, n_vt: f64, v_crit: f64) -> f64 {
     if v_new > v_crit && (v_new - v_old).abs() > 2.0 * n_vt {
         if v_old > 0.0 {
             let arg = 1.0 + (v_new - v_old) / n_vt;

@@ -9,14 +9,28 @@
 //! Index 0 of the unknown vector is the reference node: it is kept in the vectors so that
 //! stamping needs no branches, and the solver ignores row and column 0.
 
+mod bipolar;
+mod comparator;
 mod diode;
+mod mosfet;
 mod passive;
+mod regulator;
+mod relay;
 mod sources;
 mod switch;
+mod timer;
 
+pub(crate) use bipolar::{Bipolar, BIPOLAR_SCRATCH};
+pub(crate) use comparator::Comparator;
 pub(crate) use diode::Junction;
+pub(crate) use mosfet::Mosfet;
 pub(crate) use passive::Windings;
+pub(crate) use regulator::Regulator;
+pub(crate) use relay::Relay;
+pub use relay::RelayState;
+pub(crate) use timer::Timer;
 
+use crate::engine::{ContactAction, EventKind, Scheduled};
 use crate::waveform::Waveform;
 
 /// How time derivatives are discretised for one solve.
@@ -86,6 +100,27 @@ impl Mna<'_> {
         self.b[n] += i;
     }
 
+    /// A nonlinear current `i0 + sum g_k (v(nodes_k) - x(nodes_k))` flowing through an
+    /// element from `p` to `n`, linearised at `x`.
+    #[inline]
+    pub fn nonlinear_current(
+        &mut self,
+        p: usize,
+        n: usize,
+        i0: f64,
+        nodes: &[usize],
+        g: &[f64],
+        x: &[f64],
+    ) {
+        let mut i_eq = i0;
+        for (&node, &gk) in nodes.iter().zip(g) {
+            self.add(p, node, gk);
+            self.add(n, node, -gk);
+            i_eq -= gk * x[node];
+        }
+        self.current(p, n, i_eq);
+    }
+
     /// The incidence of branch current unknown `branch` flowing from `p` to `n`.
     #[inline]
     pub fn branch_incidence(&mut self, p: usize, n: usize, branch: usize) {
@@ -106,6 +141,13 @@ pub enum Mode {
         /// Whether it is closed.
         closed: bool,
     },
+    /// A relay's armature and contacts.
+    Relay(RelayState),
+    /// A timer's flip-flop.
+    Timer {
+        /// Whether the flip-flop is set (output high).
+        set: bool,
+    },
 }
 
 /// A compiled device.
@@ -123,6 +165,8 @@ pub(crate) enum Device {
         initial_voltage: f64,
         /// History slots: [voltage, current, previous current].
         hist: usize,
+        /// Whether its truncation error controls the step (not for behavioural lags).
+        checked: bool,
     },
     /// One inductor or a set of coupled windings.
     Windings(Windings),
@@ -159,6 +203,12 @@ pub(crate) enum Device {
         on_g: f64,
         off_g: f64,
     },
+    Comparator(Comparator),
+    Mosfet(Mosfet),
+    Bipolar(Bipolar),
+    Regulator(Regulator),
+    Relay(Relay),
+    Timer(Timer),
 }
 
 /// Newton scratch slots a diode uses.
@@ -221,12 +271,30 @@ impl Device {
                 let closed = matches!(mode, Mode::Switch { closed: true });
                 m.conductance(*a, *b, if closed { *on_g } else { *off_g });
             }
+            Device::Comparator(c) => c.stamp(m, x),
+            Device::Mosfet(t) => t.stamp(m, x),
+            Device::Bipolar(t) => t.stamp(m, x, ctx.gmin, scratch),
+            Device::Regulator(r) => r.stamp(m, x),
+            Device::Relay(r) => {
+                if let Mode::Relay(state) = mode {
+                    r.stamp(m, state);
+                }
+            }
+            Device::Timer(t) => t.stamp(m, x, matches!(mode, Mode::Timer { set: true })),
         }
     }
 
     /// Whether the device's characteristic depends on the solution.
     pub fn is_nonlinear(&self) -> bool {
-        matches!(self, Device::Diode { .. })
+        matches!(
+            self,
+            Device::Diode { .. }
+                | Device::Comparator(_)
+                | Device::Mosfet(_)
+                | Device::Bipolar(_)
+                | Device::Regulator(_)
+                | Device::Timer(_)
+        )
     }
 
     /// Prepares Newton scratch: the junction voltage that limiting starts from. It is the
@@ -234,17 +302,20 @@ impl Device {
     /// last accepted solution beyond its critical voltage, where an extrapolation overshoot
     /// would start the exponential far out; then limiting starts from the accepted value.
     pub fn begin_newton(&self, accepted: &[f64], guess: &[f64], scratch: &mut [f64]) {
-        if let Device::Diode {
-            inner,
-            cathode,
-            junction,
-            scratch: s,
-            ..
-        } = self
-        {
-            let v_accepted = accepted[*inner] - accepted[*cathode];
-            let v_guess = guess[*inner] - guess[*cathode];
-            scratch[*s] = junction.limiting_anchor(v_accepted, v_guess);
+        match self {
+            Device::Diode {
+                inner,
+                cathode,
+                junction,
+                scratch: s,
+                ..
+            } => {
+                let v_accepted = accepted[*inner] - accepted[*cathode];
+                let v_guess = guess[*inner] - guess[*cathode];
+                scratch[*s] = junction.limiting_anchor(v_accepted, v_guess);
+            }
+            Device::Bipolar(t) => t.begin_newton(accepted, scratch),
+            _ => {}
         }
     }
 
@@ -272,6 +343,7 @@ impl Device {
                 reltol,
                 abstol,
             ),
+            Device::Bipolar(t) => !t.limited(scratch),
             _ => true,
         }
     }
@@ -336,6 +408,8 @@ impl Device {
     pub fn initial_mode(&self) -> Mode {
         match self {
             Device::Switch { .. } => Mode::Switch { closed: false },
+            Device::Relay(_) => Mode::Relay(RelayState::RELEASED),
+            Device::Timer(_) => Mode::Timer { set: false },
             _ => Mode::Continuous,
         }
     }
@@ -360,22 +434,41 @@ impl Device {
                 *on_voltage,
                 *off_voltage,
             )),
+            (Device::Relay(r), Mode::Relay(state)) => Some(r.crossing(x, state)),
+            (Device::Timer(t), Mode::Timer { set }) => Some(t.crossing(x, set)),
             _ => None,
         }
     }
 
-    /// Applies the state change announced by a positive crossing function.
-    pub fn cross(&self, mode: &mut Mode) -> Option<crate::engine::EventKind> {
-        match mode {
-            Mode::Switch { closed } => {
+    /// Applies the state change announced by a positive crossing function at `time`;
+    /// a relay also schedules its contact sequence in `pending`.
+    pub fn cross(
+        &self,
+        device: usize,
+        time: f64,
+        mode: &mut Mode,
+        pending: &mut Vec<Scheduled>,
+    ) -> Option<EventKind> {
+        match (self, mode) {
+            (Device::Switch { .. }, Mode::Switch { closed }) => {
                 *closed = !*closed;
                 Some(if *closed {
-                    crate::engine::EventKind::SwitchClosed
+                    EventKind::SwitchClosed
                 } else {
-                    crate::engine::EventKind::SwitchOpened
+                    EventKind::SwitchOpened
                 })
             }
-            Mode::Continuous => None,
+            (Device::Relay(r), Mode::Relay(state)) => Some(r.cross(device, time, state, pending)),
+            (Device::Timer(_), Mode::Timer { set }) => Some(Timer::cross(set)),
+            _ => None,
+        }
+    }
+
+    /// Applies a scheduled contact change.
+    pub fn apply_scheduled(&self, action: ContactAction, mode: &mut Mode) -> Option<EventKind> {
+        match mode {
+            Mode::Relay(state) => Some(Relay::apply(action, state)),
+            _ => None,
         }
     }
 
@@ -399,34 +492,55 @@ impl Device {
                 let closed = matches!(mode, Mode::Switch { closed: true });
                 (x[*a] - x[*b]) * if closed { *on_g } else { *off_g }
             }
+            Device::Comparator(c) => c.current(x),
+            Device::Mosfet(t) => t.evaluate(x).0,
+            Device::Bipolar(t) => t.collector_current(x),
+            Device::Regulator(r) => r.input_current(x),
+            Device::Relay(_) => 0.0,
+            Device::Timer(t) => t.output_current(x, matches!(mode, Mode::Timer { set: true })),
         }
     }
 
-    /// Whether a junction switched between blocking and conducting during a step from
-    /// `x_old` to `x_new`: its current crossed `on_current` (forward or reverse). Such a
-    /// step holds a corner the trapezoidal rule integrates badly; the engine shortens it
-    /// and restarts after it.
-    pub fn switched(&self, x_old: &[f64], x_new: &[f64], on_current: f64) -> bool {
-        let Device::Diode {
-            inner,
-            cathode,
-            junction,
-            ..
-        } = self
-        else {
-            return false;
-        };
-        let regime = |x: &[f64]| {
-            let i = junction.current(x[*inner] - x[*cathode]).0;
-            if i > on_current {
-                1
-            } else if i < -on_current {
-                -1
-            } else {
-                0
+    /// The operating region of a device whose characteristic has corners: a junction is
+    /// blocking (0) or conducting forward (1) or in breakdown (-1) by `on_current`; a
+    /// transistor off or on; a comparator low, linear or high; a regulator off, regulating,
+    /// in dropout or limiting. A step across which a region changes holds a corner the
+    /// trapezoidal rule integrates badly; the engine shortens it and restarts after it.
+    pub fn regime(&self, x: &[f64], on_current: f64) -> i8 {
+        match self {
+            Device::Diode {
+                inner,
+                cathode,
+                junction,
+                ..
+            } => {
+                let i = junction.current(x[*inner] - x[*cathode]).0;
+                if i > on_current {
+                    1
+                } else if i < -on_current {
+                    -1
+                } else {
+                    0
+                }
             }
-        };
-        regime(x_old) != regime(x_new)
+            Device::Comparator(c) => c.regime(x),
+            Device::Mosfet(t) => t.regime(x, on_current),
+            Device::Bipolar(t) => t.regime(x, on_current),
+            Device::Regulator(r) => r.regime(x, on_current),
+            _ => 0,
+        }
+    }
+
+    /// Whether the device can change region (see [`Device::regime`]).
+    pub fn has_regimes(&self) -> bool {
+        matches!(
+            self,
+            Device::Diode { .. }
+                | Device::Comparator(_)
+                | Device::Mosfet(_)
+                | Device::Bipolar(_)
+                | Device::Regulator(_)
+        )
     }
 
     /// The trapezoidal truncation error of a step to `x` estimated from the device's own
@@ -449,6 +563,7 @@ impl Device {
                 b,
                 capacitance,
                 hist: h,
+                checked: true,
                 ..
             } => {
                 let v = x[*a] - x[*b];
@@ -469,7 +584,13 @@ impl Device {
     /// [`Device::derivative_error`] alone: an open winding's current says nothing of its
     /// flux.
     pub fn error_probes(&self, out: &mut Vec<(usize, usize, bool)>) {
-        if let Device::Capacitor { a, b, .. } = self {
+        if let Device::Capacitor {
+            a,
+            b,
+            checked: true,
+            ..
+        } = self
+        {
             out.push((*a, *b, false));
         }
     }

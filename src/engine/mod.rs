@@ -51,10 +51,13 @@ pub struct Settings {
     /// Conductance across every junction and from every node to ground, siemens.
     /// Default 1e-12 S.
     pub gmin: f64,
-    /// A junction counts as conducting above this current, amperes. Default 10 uA.
+    /// A junction or transistor counts as conducting above this current, amperes.
+    /// Default 10 uA.
     pub corner_current_a: f64,
-    /// A step in which a junction starts or stops conducting is shortened to this and
-    /// integration restarts after it, seconds; 0 turns corner handling off. Default 20 us.
+    /// A step in which a device changes operating region (a junction starts or stops
+    /// conducting, a comparator switches, a regulator enters dropout) is shortened to this
+    /// and integration restarts after it, seconds; 0 turns corner handling off.
+    /// Default 20 us.
     pub corner_step_s: f64,
 }
 
@@ -117,7 +120,50 @@ pub enum EventKind {
     SwitchClosed,
     /// A voltage-controlled switch opened.
     SwitchOpened,
+    /// A relay armature picked up (coil current rose through the pick-up current).
+    PickUp,
+    /// A relay armature dropped out (coil current fell through the drop-out current).
+    DropOut,
+    /// A relay's normally-open contact made (closed).
+    NormallyOpenMade,
+    /// A relay's normally-open contact broke (opened).
+    NormallyOpenBroken,
+    /// A relay's normally-closed contact made.
+    NormallyClosedMade,
+    /// A relay's normally-closed contact broke.
+    NormallyClosedBroken,
+    /// A timer's flip-flop set (output high).
+    TimerSet,
+    /// A timer's flip-flop reset (output low).
+    TimerReset,
 }
+
+/// A contact change a relay schedules after an armature movement.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ContactAction {
+    /// Close common to normally-open.
+    MakeNormallyOpen,
+    /// Open common to normally-open.
+    BreakNormallyOpen,
+    /// Close common to normally-closed.
+    MakeNormallyClosed,
+    /// Open common to normally-closed.
+    BreakNormallyClosed,
+}
+
+/// A discrete change scheduled for a later instant (a breakpoint the stepper lands on).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Scheduled {
+    /// When, seconds.
+    pub time: f64,
+    /// The device it belongs to.
+    pub device: usize,
+    /// What happens.
+    pub action: ContactAction,
+}
+
+/// Scheduled changes a state can hold without allocating.
+const PENDING_CAPACITY: usize = 256;
 
 /// A discrete event with its exact time.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -180,6 +226,8 @@ pub struct SimState {
     x: Vec<f64>,
     hist: Vec<f64>,
     modes: Vec<Mode>,
+    /// Scheduled discrete changes, in the order they were scheduled.
+    pending: Vec<Scheduled>,
     /// Two earlier solutions, most recent first, for the truncation-error estimate.
     past_x: Vec<f64>,
     past_t: [f64; 2],
@@ -207,6 +255,11 @@ impl SimState {
     /// Discrete mode of device `device`.
     pub fn mode(&self, device: usize) -> Mode {
         self.modes[device]
+    }
+
+    /// Discrete changes scheduled for later instants.
+    pub fn pending(&self) -> &[Scheduled] {
+        &self.pending
     }
 }
 
@@ -306,6 +359,7 @@ impl Simulator {
                 .iter()
                 .map(|d| d.initial_mode())
                 .collect(),
+            pending: Vec::with_capacity(PENDING_CAPACITY),
             past_x: vec![0.0; 2 * dim],
             past_t: [0.0; 2],
             points_since_break: 1,
@@ -672,12 +726,14 @@ impl Simulator {
         state.stats.restarts += 1;
     }
 
-    /// Whether any junction switched between the state and the solution in the workspace.
-    fn junction_switched(&self, state: &SimState) -> bool {
-        self.network
-            .devices
-            .iter()
-            .any(|d| d.switched(&state.x, &self.ws.x_sol, self.settings.corner_current_a))
+    /// Whether any device changed operating region between the state and the solution in
+    /// the workspace (see `Device::regime`).
+    fn region_changed(&self, state: &SimState) -> bool {
+        let on = self.settings.corner_current_a;
+        self.network.regime_devices.iter().any(|&d| {
+            let device = &self.network.devices[d];
+            device.regime(&state.x, on) != device.regime(&self.ws.x_sol, on)
+        })
     }
 
     /// The largest crossing function over the discrete devices at `x`.
@@ -700,7 +756,9 @@ impl Simulator {
         for &d in &self.network.discrete_devices {
             let device = &self.network.devices[d];
             if device.crossing(&state.x, state.modes[d]).unwrap_or(0.0) > 0.0 {
-                if let Some(kind) = device.cross(&mut state.modes[d]) {
+                if let Some(kind) =
+                    device.cross(d, state.time, &mut state.modes[d], &mut state.pending)
+                {
                     any = true;
                     observer.event(
                         &self.network,
@@ -711,6 +769,35 @@ impl Simulator {
                         },
                     );
                 }
+            }
+        }
+        any | self.apply_due(state, observer)
+    }
+
+    /// Applies every scheduled change due at or before the present time, in order;
+    /// returns whether any was.
+    fn apply_due<O: Observer + ?Sized>(&self, state: &mut SimState, observer: &mut O) -> bool {
+        let now = state.time + 1e-13 * state.time.abs().max(1e-6);
+        let mut any = false;
+        let mut k = 0;
+        while k < state.pending.len() {
+            let s = state.pending[k];
+            if s.time <= now {
+                state.pending.remove(k);
+                let device = &self.network.devices[s.device];
+                if let Some(kind) = device.apply_scheduled(s.action, &mut state.modes[s.device]) {
+                    any = true;
+                    observer.event(
+                        &self.network,
+                        &DiscreteEvent {
+                            time: state.time,
+                            part: self.network.device_part[s.device],
+                            kind,
+                        },
+                    );
+                }
+            } else {
+                k += 1;
             }
         }
         any
@@ -763,14 +850,23 @@ impl Simulator {
         Ok(tb)
     }
 
-    /// The next instant after `t` where a source is not smooth.
-    fn next_breakpoint(&self, t: f64) -> f64 {
+    /// The next instant after the state's time where a source is not smooth or a
+    /// scheduled change is due.
+    fn next_breakpoint(&self, state: &SimState) -> f64 {
+        let t = state.time;
         let eps = 1e-14 * t.abs().max(1e-3);
-        self.network
+        let sources = self
+            .network
             .devices
             .iter()
             .map(|d| d.next_breakpoint(t + eps))
-            .fold(f64::INFINITY, f64::min)
+            .fold(f64::INFINITY, f64::min);
+        state
+            .pending
+            .iter()
+            .map(|s| s.time)
+            .filter(|&time| time > t + eps)
+            .fold(sources, f64::min)
     }
 
     /// Integrates `state` forward to `t_end`, reporting to `observer`.
@@ -784,14 +880,14 @@ impl Simulator {
         let mut cascade = 0;
         while t_end - state.time > time_eps(t_end) {
             if !self.network.discrete_devices.is_empty() {
-                if self.apply_crossings(state, observer) && cascade < 16 {
+                if self.apply_crossings(state, observer) && cascade < 64 {
                     cascade += 1;
                     self.restart(state);
                     continue;
                 }
                 cascade = 0;
             }
-            let breakpoint = self.next_breakpoint(state.time);
+            let breakpoint = self.next_breakpoint(state);
             let stop = t_end.min(breakpoint);
             let method = if state.points_since_break <= 1 {
                 Method::BackwardEuler
@@ -838,8 +934,8 @@ impl Simulator {
                 state.just_rejected = false;
             }
 
-            // A junction switching inside a long step: shorten the step around the corner.
-            let corner = self.settings.corner_step_s > 0.0 && self.junction_switched(state);
+            // A device changing region inside a long step: shorten the step around the corner.
+            let corner = self.settings.corner_step_s > 0.0 && self.region_changed(state);
             if corner && h > self.settings.corner_step_s * (1.0 + 1e-9) {
                 state.stats.rejected_steps += 1;
                 state.just_rejected = true;
@@ -870,6 +966,7 @@ impl Simulator {
                 self.apply_crossings(state, observer);
                 self.restart(state);
             } else if lands && stop == breakpoint {
+                self.apply_due(state, observer);
                 self.restart(state);
             } else if corner {
                 // Restart with a damped step so the trapezoidal rule does not carry the

@@ -1,7 +1,10 @@
 //! Compiling a [`Circuit`] into the engine's form: unknowns, devices and their slots.
 
 use crate::circuit::{Circuit, PartSpec};
-use crate::devices::{Device, Junction, Mode, Windings, DIODE_SCRATCH};
+use crate::devices::{
+    Bipolar, Comparator, Device, Junction, Mode, Mosfet, Regulator, Relay, Timer, Windings,
+    BIPOLAR_SCRATCH, DIODE_SCRATCH,
+};
 
 /// What an unknown of the system is.
 #[derive(Clone, Debug, PartialEq, Eq)]
@@ -37,6 +40,8 @@ pub struct Network {
     pub(crate) error_probes: Vec<(usize, usize, bool)>,
     /// Devices with a discrete state.
     pub(crate) discrete_devices: Vec<usize>,
+    /// Devices with operating regions (corners).
+    pub(crate) regime_devices: Vec<usize>,
     pub(crate) nonlinear: bool,
 }
 
@@ -90,6 +95,7 @@ impl Network {
                             capacitance: *capacitance,
                             initial_voltage: initial_voltage.unwrap_or(0.0),
                             hist: history_len,
+                            checked: true,
                         },
                         1.0,
                     );
@@ -212,6 +218,153 @@ impl Network {
                         scratch_len += DIODE_SCRATCH;
                     }
                 }
+                PartSpec::Comparator(c) => {
+                    let lag = new_unknown(
+                        &mut unknowns,
+                        format!("{}#lag", part.name),
+                        UnknownKind::Internal { part: pi },
+                    );
+                    // The lag: 1 S and `response_time` farads from the lag node to ground.
+                    push(
+                        &mut devices,
+                        Device::Resistor {
+                            a: lag,
+                            b: 0,
+                            g: 1.0,
+                        },
+                        0.0,
+                    );
+                    push(
+                        &mut devices,
+                        Device::Capacitor {
+                            a: lag,
+                            b: 0,
+                            capacitance: c.response_time,
+                            initial_voltage: 0.0,
+                            hist: history_len,
+                            checked: false,
+                        },
+                        0.0,
+                    );
+                    history_len += 3;
+                    push(
+                        &mut devices,
+                        Device::Comparator(Comparator {
+                            plus: pins[0],
+                            minus: pins[1],
+                            output: pins[2],
+                            supply_plus: pins[3],
+                            supply_minus: pins[4],
+                            lag,
+                            params: c.clone(),
+                        }),
+                        -1.0,
+                    );
+                }
+                PartSpec::Mosfet(m) => {
+                    let (drain, gate, source) = (pins[0], pins[1], pins[2]);
+                    push(
+                        &mut devices,
+                        Device::Mosfet(Mosfet {
+                            drain,
+                            gate,
+                            source,
+                            params: m.clone(),
+                        }),
+                        1.0,
+                    );
+                    if let Some(d) = &m.body_diode {
+                        // Source to drain for N channel, drain to source for P.
+                        let (anode, cathode) = if m.polarity > 0.0 {
+                            (source, drain)
+                        } else {
+                            (drain, source)
+                        };
+                        push(
+                            &mut devices,
+                            Device::Diode {
+                                anode,
+                                inner: anode,
+                                cathode,
+                                series_g: 0.0,
+                                junction: Junction::new(d),
+                                scratch: scratch_len,
+                            },
+                            -m.polarity,
+                        );
+                        scratch_len += DIODE_SCRATCH;
+                    }
+                }
+                PartSpec::Bipolar(b) => {
+                    push(
+                        &mut devices,
+                        Device::Bipolar(Bipolar {
+                            collector: pins[0],
+                            base: pins[1],
+                            emitter: pins[2],
+                            params: b.clone(),
+                            scratch: scratch_len,
+                        }),
+                        1.0,
+                    );
+                    scratch_len += BIPOLAR_SCRATCH;
+                }
+                PartSpec::Regulator(r) => push(
+                    &mut devices,
+                    Device::Regulator(Regulator {
+                        input: pins[0],
+                        output: pins[1],
+                        common: pins[2],
+                        params: r.clone(),
+                    }),
+                    1.0,
+                ),
+                PartSpec::Relay(r) => {
+                    let coil_branch = new_unknown(
+                        &mut unknowns,
+                        format!("i({}.coil)", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    push(
+                        &mut devices,
+                        Device::Windings(Windings {
+                            count: 1,
+                            pins: [(pins[0], pins[1]), (0, 0)],
+                            branch: [coil_branch, 0],
+                            inductance: [[r.coil_inductance, 0.0], [0.0, 0.0]],
+                            resistance: [r.coil_resistance, 0.0],
+                            initial_current: [0.0; 2],
+                            hist: history_len,
+                        }),
+                        1.0,
+                    );
+                    history_len += 3;
+                    push(
+                        &mut devices,
+                        Device::Relay(Relay {
+                            coil_branch,
+                            common: pins[2],
+                            normally_open: pins[3],
+                            normally_closed: pins[4],
+                            params: r.clone(),
+                        }),
+                        0.0,
+                    );
+                }
+                PartSpec::Timer(t) => push(
+                    &mut devices,
+                    Device::Timer(Timer {
+                        supply_plus: pins[0],
+                        supply_minus: pins[1],
+                        trigger: pins[2],
+                        threshold: pins[3],
+                        reset: pins[4],
+                        output: pins[5],
+                        discharge: pins[6],
+                        params: t.clone(),
+                    }),
+                    -1.0,
+                ),
                 PartSpec::Switch(s) => push(
                     &mut devices,
                     Device::Switch {
@@ -240,6 +393,12 @@ impl Network {
             .filter(|(_, d)| d.initial_mode() != Mode::Continuous)
             .map(|(i, _)| i)
             .collect();
+        let regime_devices = devices
+            .iter()
+            .enumerate()
+            .filter(|(_, d)| d.has_regimes())
+            .map(|(i, _)| i)
+            .collect();
         let nonlinear = devices.iter().any(Device::is_nonlinear);
         Network {
             circuit: circuit.clone(),
@@ -251,6 +410,7 @@ impl Network {
             scratch_len,
             error_probes,
             discrete_devices,
+            regime_devices,
             nonlinear,
         }
     }
