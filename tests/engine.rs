@@ -247,3 +247,82 @@ fn tighter_settings_are_honoured() {
         .fold(0.0, f64::max);
     assert!(widest <= 10e-6 * (1.0 + 1e-9), "{widest}");
 }
+
+/// A deterministic sparse, nonsymmetric matrix with some zero diagonals (as the branch rows
+/// of voltage sources have), returned with its pattern.
+fn sparse_system(n: usize, seed: u64, scale_row: usize) -> (Vec<f64>, Vec<bool>, Vec<f64>) {
+    let dim = n + 1;
+    let mut state = seed;
+    let mut next = || {
+        state = state
+            .wrapping_mul(6364136223846793005)
+            .wrapping_add(1442695040888963407);
+        (state >> 11) as f64 / (1u64 << 53) as f64
+    };
+    let mut a = vec![0.0; dim * dim];
+    for i in 1..dim {
+        // A tridiagonal-ish core plus a few far couplings; every third diagonal is zero.
+        for j in 1..dim {
+            let near = (i as i64 - j as i64).abs() <= 1;
+            let far = next() < 0.08;
+            if (near || far) && !(i == j && i % 3 == 0) {
+                a[i * dim + j] = next() * 2.0 - 1.0 + if i == j { 3.0 } else { 0.0 };
+            }
+        }
+    }
+    for j in 1..dim {
+        a[scale_row * dim + j] *= 1e6;
+    }
+    let pattern = a.iter().map(|v| *v != 0.0).collect();
+    let b = (0..dim)
+        .map(|i| if i == 0 { 0.0 } else { next() - 0.5 })
+        .collect();
+    (a, pattern, b)
+}
+
+#[test]
+fn sparse_lu_agrees_with_nalgebra_and_reuses_its_order() {
+    for (n, seed) in [(8, 1), (20, 2), (35, 3)] {
+        let dim = n + 1;
+        let (a0, pattern, b) = sparse_system(n, seed, 2);
+        let mut reference = nalgebra::DMatrix::<f64>::zeros(n, n);
+        for i in 1..dim {
+            for j in 1..dim {
+                reference[(i - 1, j - 1)] = a0[i * dim + j];
+            }
+        }
+        let rhs = nalgebra::DVector::from_iterator(n, b[1..].iter().copied());
+        let expected = reference.clone().lu().solve(&rhs).unwrap();
+        let mut lu = sagtrip::engine::SparseLu::new(dim, &pattern);
+        let mut work = vec![0.0; dim];
+        let check = |x: &[f64], expected: &nalgebra::DVector<f64>| {
+            for i in 0..n {
+                assert!(
+                    (x[i + 1] - expected[i]).abs() < 1e-9 * (1.0 + expected[i].abs()),
+                    "n={n} {i}: {} vs {}",
+                    x[i + 1],
+                    expected[i]
+                );
+            }
+        };
+        // First factorisation chooses the order.
+        let mut a = a0.clone();
+        assert!(lu.refactor(&mut a).is_err(), "no order yet");
+        let mut a = a0.clone();
+        lu.factor_choosing_order(&mut a).unwrap();
+        let mut x = b.clone();
+        lu.solve(&a, &mut x, &mut work);
+        check(&x, &expected);
+        // Same pattern, new values: the kept order is reused.
+        let mut a1 = a0.clone();
+        for v in a1.iter_mut() {
+            *v *= 1.5;
+        }
+        let mut x = b.clone();
+        lu.refactor(&mut a1).unwrap();
+        lu.solve(&a1, &mut x, &mut work);
+        let expected1 = (reference * 1.5).lu().solve(&rhs).unwrap();
+        check(&x, &expected1);
+        assert!(lu.fill() < dim * dim, "sparse: {} entries", lu.fill());
+    }
+}

@@ -76,12 +76,20 @@ pub(crate) struct Mna<'a> {
     pub dim: usize,
     pub a: &'a mut [f64],
     pub b: &'a mut [f64],
+    /// Structure pass: mark every touched entry with 1 instead of adding values, so the
+    /// solver learns which entries can ever be nonzero.
+    pub structural: bool,
 }
 
 impl Mna<'_> {
     #[inline]
     pub fn add(&mut self, row: usize, col: usize, value: f64) {
-        self.a[row * self.dim + col] += value;
+        let entry = &mut self.a[row * self.dim + col];
+        if self.structural {
+            *entry = 1.0;
+        } else {
+            *entry += value;
+        }
     }
 
     /// A conductance `g` between nodes `p` and `n`.

@@ -35,10 +35,14 @@ impl Timer {
         let p = &self.params;
         let g = 1.0 / p.output_resistance;
         m.add(self.output, self.output, g);
+        // Both supply entries are touched in either state, so the matrix pattern does not
+        // depend on the flip-flop.
         if set {
             m.add(self.output, self.supply_plus, -g);
+            m.add(self.output, self.supply_minus, 0.0);
             m.b[self.output] -= g * p.high_headroom;
         } else {
+            m.add(self.output, self.supply_plus, 0.0);
             m.add(self.output, self.supply_minus, -g);
             m.b[self.output] += g * p.low_headroom;
         }

@@ -14,7 +14,7 @@
 mod lu;
 mod network;
 
-pub use lu::{DenseLu, Singular};
+pub use lu::{DenseLu, RefactorError, Singular, SparseLu};
 pub use network::{Network, UnknownKind};
 
 use crate::circuit::Circuit;
@@ -106,6 +106,8 @@ pub struct RunStats {
     pub newton_iterations: u64,
     /// Matrix factorisations.
     pub factorizations: u64,
+    /// Factorisations that had to choose a new pivot order.
+    pub reorders: u64,
     /// Breakpoints and discrete events after which integration restarted.
     pub restarts: u64,
     /// Discrete state changes located in time.
@@ -263,6 +265,36 @@ impl SimState {
     }
 }
 
+/// The structural pattern of a network's matrix: every entry any device can touch, found
+/// by one assembly pass that marks instead of adding.
+fn structure(network: &Network) -> Vec<bool> {
+    let dim = network.dim();
+    let mut a = vec![0.0; dim * dim];
+    let mut b = vec![0.0; dim];
+    let mut scratch = vec![0.0; network.scratch_len];
+    let hist = vec![0.0; network.history_len];
+    let x = vec![0.0; dim];
+    let ctx = SolveContext {
+        time: 0.0,
+        h: 1e-6,
+        method: Method::Trapezoidal,
+        source_scale: 1.0,
+        gmin: 1e-12,
+        shunt: 1e-12,
+        left_limit: false,
+    };
+    let mut m = Mna {
+        dim,
+        a: &mut a,
+        b: &mut b,
+        structural: true,
+    };
+    for d in &network.devices {
+        d.stamp(&mut m, &ctx, &x, &hist, d.initial_mode(), &mut scratch);
+    }
+    a.iter().map(|&v| v != 0.0).collect()
+}
+
 /// A solved node voltage (V) or branch current (A) beyond this is taken as undetermined.
 const IMPLAUSIBLE: f64 = 1e9;
 
@@ -277,7 +309,7 @@ enum NewtonFailure {
 struct Workspace {
     a: Vec<f64>,
     b: Vec<f64>,
-    lu: DenseLu,
+    lu: SparseLu,
     work: Vec<f64>,
     /// Newton iterate; holds the solution after a successful solve.
     x_sol: Vec<f64>,
@@ -318,10 +350,11 @@ impl Simulator {
     pub fn new(circuit: &Circuit, settings: Settings) -> Self {
         let network = Network::new(circuit);
         let dim = network.dim();
+        let pattern = structure(&network);
         let ws = Workspace {
             a: vec![0.0; dim * dim],
             b: vec![0.0; dim],
-            lu: DenseLu::new(dim),
+            lu: SparseLu::new(dim, &pattern),
             work: vec![0.0; dim],
             x_sol: vec![0.0; dim],
             x_next: vec![0.0; dim],
@@ -466,7 +499,9 @@ impl Simulator {
     /// Assembles the linearised system at `x` into the workspace.
     fn assemble(&mut self, ctx: &SolveContext, hist: &[f64], modes: &[Mode], x_is_next: bool) {
         let ws = &mut self.ws;
-        ws.a.iter_mut().for_each(|v| *v = 0.0);
+        for &k in ws.lu.entries() {
+            ws.a[k] = 0.0;
+        }
         ws.b.iter_mut().for_each(|v| *v = 0.0);
         let dim = self.network.dim();
         let x = if x_is_next { &ws.x_next } else { &ws.x_sol };
@@ -474,6 +509,7 @@ impl Simulator {
             dim,
             a: &mut ws.a,
             b: &mut ws.b,
+            structural: false,
         };
         for (i, d) in self.network.devices.iter().enumerate() {
             d.stamp(&mut m, ctx, x, hist, modes[i], &mut ws.scratch);
@@ -515,14 +551,21 @@ impl Simulator {
             self.assemble(ctx, &state.hist, &state.modes, false);
             state.stats.newton_iterations += 1;
             state.stats.factorizations += 1;
-            let ws = &mut self.ws;
             let keep_matrix = iteration >= 2;
             if keep_matrix {
-                ws.a_copy.copy_from_slice(&ws.a);
+                self.ws.a_copy.copy_from_slice(&self.ws.a);
             }
-            if let Err(Singular { unknown }) = ws.lu.factor(&mut ws.a) {
-                return Err(NewtonFailure::Singular(unknown));
+            if self.ws.lu.refactor(&mut self.ws.a).is_err() {
+                // The kept pivot order no longer suits the values: assemble again (the
+                // failed attempt overwrote part of the matrix) and choose a new order.
+                self.assemble(ctx, &state.hist, &state.modes, false);
+                state.stats.reorders += 1;
+                if let Err(Singular { unknown }) = self.ws.lu.factor_choosing_order(&mut self.ws.a)
+                {
+                    return Err(NewtonFailure::Singular(unknown));
+                }
             }
+            let ws = &mut self.ws;
             ws.x_next.copy_from_slice(&ws.b);
             ws.lu.solve(&ws.a, &mut ws.x_next, &mut ws.work);
             if !self.network.nonlinear {
@@ -915,7 +958,9 @@ impl Simulator {
                 continue;
             }
 
-            let mut growth = 2.0;
+            // Before the error estimate is available (just after a restart) grow fast: the
+            // restart step is deliberately tiny.
+            let mut growth = 4.0;
             if method == Method::Trapezoidal && state.points_since_break >= 3 {
                 let err = self.truncation_error(state, h);
                 let factor = 0.9 * err.max(1e-12).powf(-1.0 / 3.0);
