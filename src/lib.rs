@@ -12,11 +12,13 @@
 
 #![warn(missing_docs)]
 
+pub mod builtin;
 pub mod circuit;
 pub mod circuit_file;
 pub mod devices;
 pub mod engine;
 pub mod output;
 pub mod probe;
+pub mod summary;
 pub mod units;
 pub mod waveform;

@@ -10,11 +10,13 @@ use std::io::Write as _;
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
 
+use sagtrip::builtin;
 use sagtrip::circuit::{Circuit, PartSpec};
 use sagtrip::circuit_file::parse_circuit;
 use sagtrip::engine::{Settings, Simulator, Start};
 use sagtrip::output::write_atomic;
 use sagtrip::probe::{Probe, Trace};
+use sagtrip::summary::{relay_timelines, settled_values};
 use sagtrip::units::{parse_value, Engineering, Quantity};
 
 /// Appends a line to a report string (writing to a String cannot fail).
@@ -43,9 +45,9 @@ struct Cli {
 enum Command {
     /// Validate a circuit file and list its parts, nodes and parameter sets.
     Check {
-        /// Circuit file (TOML).
+        /// Circuit file (TOML); the built-in reference guard when omitted.
         #[arg(long)]
-        circuit: PathBuf,
+        circuit: Option<PathBuf>,
     },
     /// Simulate a circuit in the time domain and summarise the probed quantities.
     Run(RunArgs),
@@ -53,17 +55,18 @@ enum Command {
 
 #[derive(Args)]
 struct RunArgs {
-    /// Circuit file (TOML).
+    /// Circuit file (TOML); the built-in reference guard when omitted.
     #[arg(long)]
-    circuit: PathBuf,
-    /// Simulated time, e.g. 200ms, 1s (default: 10 mains cycles, or 100 ms).
+    circuit: Option<PathBuf>,
+    /// Simulated time, e.g. 200ms, 1s (default: 2 s for a circuit with a relay, else 10
+    /// mains cycles, or 100 ms without a sine source).
     #[arg(long)]
     duration: Option<String>,
     /// Largest time step, e.g. 50us (default 100us).
     #[arg(long)]
     max_step: Option<String>,
-    /// How the run begins.
-    #[arg(long, value_enum, default_value_t = StartArg::OperatingPoint)]
+    /// How the run begins (default: from rest, as when the unit is plugged in).
+    #[arg(long, value_enum, default_value_t = StartArg::Rest)]
     start: StartArg,
     /// Quantity to record: a node name, or current:PART (repeatable; default: every node
     /// and the currents of sources, inductors, transformers and switches).
@@ -78,6 +81,9 @@ struct RunArgs {
     /// Print solver counters (steps, Newton iterations, factorisations).
     #[arg(long)]
     stats: bool,
+    /// List every discrete event (relay armature and contacts, switches, timers).
+    #[arg(long)]
+    events: bool,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -91,7 +97,7 @@ enum StartArg {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { circuit } => check(&circuit),
+        Command::Check { circuit } => check(circuit.as_deref()),
         Command::Run(args) => run(&args),
     };
     match result {
@@ -107,10 +113,24 @@ fn main() -> ExitCode {
     }
 }
 
-fn load_circuit(path: &Path) -> Result<Circuit, String> {
-    let text = std::fs::read_to_string(path)
-        .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?;
-    parse_circuit(&text, &path.display().to_string()).map_err(|e| e.to_string())
+/// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
+/// to report it under.
+fn load_circuit(path: Option<&Path>) -> Result<(Circuit, String), String> {
+    match path {
+        Some(path) => {
+            let text = std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?;
+            let name = path.display().to_string();
+            let circuit = parse_circuit(&text, &name).map_err(|e| e.to_string())?;
+            Ok((circuit, name))
+        }
+        None => {
+            let name = builtin::REFERENCE_GUARD_NAME.to_string();
+            let circuit =
+                parse_circuit(builtin::REFERENCE_GUARD, &name).map_err(|e| e.to_string())?;
+            Ok((circuit, name))
+        }
+    }
 }
 
 fn part_summary(spec: &PartSpec) -> String {
@@ -188,10 +208,10 @@ fn part_summary(spec: &PartSpec) -> String {
     }
 }
 
-fn check(path: &Path) -> Result<String, String> {
+fn check(path: Option<&Path>) -> Result<String, String> {
     let mut out = String::new();
-    let circuit = load_circuit(path)?;
-    say!(out, "{}: valid", path.display());
+    let (circuit, name) = load_circuit(path)?;
+    say!(out, "{name}: valid");
     if !circuit.title.is_empty() {
         say!(out, "title: {}", circuit.title);
     }
@@ -275,13 +295,21 @@ fn time_option(text: &Option<String>, name: &str) -> Result<Option<f64>, String>
 
 fn run(args: &RunArgs) -> Result<String, String> {
     let mut out = String::new();
-    let circuit = load_circuit(&args.circuit)?;
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let mut settings = Settings::default();
     if let Some(step) = time_option(&args.max_step, "max-step")? {
         settings.max_step_s = step;
     }
-    let duration = time_option(&args.duration, "duration")?
-        .unwrap_or_else(|| circuit.mains_frequency_hz().map_or(0.1, |f| 10.0 / f));
+    let has_relay = circuit
+        .parts
+        .iter()
+        .any(|p| matches!(p.spec, PartSpec::Relay(_)));
+    let mains_hz = circuit.mains_frequency_hz();
+    let duration = time_option(&args.duration, "duration")?.unwrap_or(if has_relay {
+        2.0
+    } else {
+        mains_hz.map_or(0.1, |f| 10.0 / f)
+    });
     let probes = if args.probes.is_empty() {
         Probe::defaults(&circuit)
     } else {
@@ -297,11 +325,11 @@ fn run(args: &RunArgs) -> Result<String, String> {
         StartArg::OperatingPoint => Start::OperatingPoint,
         StartArg::Rest => Start::Rest,
     };
-    let mut state = sim.start(start).map_err(|e| e.to_string())?;
+    let mut state = sim.start(start).map_err(|e| format!("{name}: {e}"))?;
     let mut trace = Trace::new(probes);
     trace.record(sim.network(), &state);
     sim.advance(&mut state, duration, &mut trace)
-        .map_err(|e| format!("{}: {e}", args.circuit.display()))?;
+        .map_err(|e| format!("{name}: {e}"))?;
     let wall = started.elapsed().as_secs_f64();
 
     if let Some(path) = &args.trace {
@@ -309,27 +337,19 @@ fn run(args: &RunArgs) -> Result<String, String> {
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
     }
 
-    let summaries: Vec<serde_json::Value> = trace
-        .probes
-        .iter()
-        .zip(&trace.columns)
-        .map(|(probe, column)| {
-            let min = column.iter().copied().fold(f64::INFINITY, f64::min);
-            let max = column.iter().copied().fold(f64::NEG_INFINITY, f64::max);
-            serde_json::json!({
-                "probe": probe.label(&circuit),
-                "final": column.last().copied().unwrap_or(f64::NAN),
-                "min": min,
-                "max": max,
-            })
-        })
-        .collect();
+    // Settled values: over the last mains cycle, or the last tenth of the run.
+    let window = mains_hz.map_or(0.1 * duration, |f| (1.0 / f).min(duration));
+    let settled = settled_values(&circuit, &trace, window);
+    let relays = relay_timelines(&circuit, &trace);
+
     if args.json {
         let value = serde_json::json!({
-            "circuit": args.circuit.display().to_string(),
+            "circuit": name,
             "title": circuit.title,
             "duration_s": duration,
-            "probes": summaries,
+            "settled_window_s": window,
+            "probes": settled,
+            "relays": relays,
             "events": trace.events.iter().map(|e| serde_json::json!({
                 "time_s": e.time,
                 "part": circuit.parts[e.part].name,
@@ -349,8 +369,7 @@ fn run(args: &RunArgs) -> Result<String, String> {
 
     say!(
         out,
-        "{}{}",
-        args.circuit.display(),
+        "{name}{}",
         if circuit.title.is_empty() {
             String::new()
         } else {
@@ -359,31 +378,87 @@ fn run(args: &RunArgs) -> Result<String, String> {
     );
     say!(
         out,
-        "simulated {} in {} steps ({:.3} s wall, {:.0}x real time)",
+        "simulated {} from {} in {} steps ({:.3} s wall, {:.0}x real time)",
         Engineering(duration, Quantity::Time),
+        match start {
+            Start::Rest => "rest",
+            Start::OperatingPoint => "the operating point",
+        },
         state.stats.accepted_steps,
         wall,
         duration / wall.max(1e-9)
     );
+    for r in &relays {
+        say!(out);
+        match (
+            r.first_pickup_s,
+            r.first_contact_made_s,
+            r.contact_settled_s,
+        ) {
+            (Some(pickup), made, settled) => {
+                say!(
+                    out,
+                    "relay `{}` first picked up at {:.3} ms",
+                    r.relay,
+                    pickup * 1e3
+                );
+                if let Some(made) = made {
+                    say!(
+                        out,
+                        "  normally-open contact first made at {:.3} ms",
+                        made * 1e3
+                    );
+                }
+                if let Some(settled) = settled {
+                    say!(
+                        out,
+                        "  contact closed for good (after bounce) at {:.3} ms",
+                        settled * 1e3
+                    );
+                }
+                say!(
+                    out,
+                    "  {} armature transition{}; {} at the end",
+                    r.armature_transitions,
+                    if r.armature_transitions == 1 { "" } else { "s" },
+                    if r.operated_at_end {
+                        "picked up"
+                    } else {
+                        "released"
+                    }
+                );
+            }
+            (None, ..) => {
+                say!(out, "relay `{}` never picked up", r.relay);
+            }
+        }
+    }
     say!(
         out,
-        "\n{:<22} {:>14} {:>14} {:>14}",
-        "probe",
-        "final",
-        "min",
-        "max"
+        "\nsettled values over the last {}:",
+        Engineering(window, Quantity::Time)
     );
-    for s in &summaries {
+    say!(
+        out,
+        "{:<22} {:>14} {:>14} {:>14} {:>14}",
+        "probe",
+        "mean",
+        "min",
+        "max",
+        "final"
+    );
+    for s in &settled {
         say!(
             out,
-            "{:<22} {:>14.6} {:>14.6} {:>14.6}",
-            s["probe"].as_str().unwrap_or(""),
-            s["final"].as_f64().unwrap_or(f64::NAN),
-            s["min"].as_f64().unwrap_or(f64::NAN),
-            s["max"].as_f64().unwrap_or(f64::NAN)
+            "{:<22} {:>14.6} {:>14.6} {:>14.6} {:>14.6}",
+            s.probe,
+            s.mean,
+            s.min,
+            s.max,
+            s.last
         );
     }
-    if !trace.events.is_empty() {
+    if !trace.events.is_empty() && args.events {
         say!(out, "\ndiscrete events:");
         for e in &trace.events {
             say!(
@@ -397,13 +472,15 @@ fn run(args: &RunArgs) -> Result<String, String> {
     }
     if args.stats {
         let s = &state.stats;
-        say!(out,
-            "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations, {} restarts, {} located events",
+        say!(
+            out,
+            "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations ({} with a new pivot order), {} restarts, {} located events",
             s.accepted_steps,
             s.rejected_steps,
             s.newton_failures,
             s.newton_iterations,
             s.factorizations,
+            s.reorders,
             s.restarts,
             s.located_events
         );

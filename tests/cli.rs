@@ -99,7 +99,7 @@ fn run_prints_json() {
     let probe = &value["probes"][0];
     assert_eq!(probe["probe"], "out_V");
     // RC charge 5 ms after the step: 5 (1 - e^-5) = 4.96631 V (Hayt, Kemmerly and Durbin).
-    let final_v = probe["final"].as_f64().unwrap();
+    let final_v = probe["last"].as_f64().unwrap();
     assert!((final_v - 4.96631).abs() < 5e-3, "{final_v}");
     assert!(value["stats"]["accepted_steps"].as_u64().unwrap() > 10);
 }
@@ -151,4 +151,51 @@ fn help_carries_the_safety_caution() {
     let out = sagtrip(&["--help"]);
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("mains voltage can kill"));
+}
+
+#[test]
+fn run_without_a_circuit_powers_up_the_reference_guard() {
+    let out = sagtrip(&["run", "--probe", "sense", "--probe", "vcc", "--json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(value["circuit"]
+        .as_str()
+        .unwrap()
+        .contains("built-in reference guard"));
+    let relay = &value["relays"][0];
+    assert_eq!(relay["relay"], "relay");
+    let pickup = relay["first_pickup_s"].as_f64().unwrap();
+    // Energised well under a second after power-up (reference-guard.md).
+    assert!(pickup > 0.3 && pickup < 1.0, "{pickup}");
+    // The contact makes 6 ms after pick-up (the close travel).
+    let made = relay["first_contact_made_s"].as_f64().unwrap();
+    assert!((made - pickup - 6e-3).abs() < 1e-9);
+    assert_eq!(relay["operated_at_end"], true);
+    // Settled supply rail at the regulator's 12 V.
+    let vcc = &value["probes"][1];
+    assert_eq!(vcc["probe"], "vcc_V");
+    assert!((vcc["mean"].as_f64().unwrap() - 12.0).abs() < 0.05);
+
+    let text = sagtrip(&["run", "--probe", "sense"]);
+    let text = String::from_utf8(text.stdout).unwrap();
+    assert!(text.contains("relay `relay` first picked up at"), "{text}");
+    assert!(
+        text.contains("settled values over the last 20 ms"),
+        "{text}"
+    );
+}
+
+#[test]
+fn check_without_a_circuit_lists_the_reference_guard() {
+    let out = sagtrip(&["check"]);
+    assert!(out.status.success());
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("built-in reference guard"));
+    assert!(text.contains("relay          relay"));
+    // The unused normally-closed contact is not listed as a connection.
+    assert!(!text.contains("normally_closed="));
 }

@@ -309,16 +309,24 @@ impl Network {
                     );
                     scratch_len += BIPOLAR_SCRATCH;
                 }
-                PartSpec::Regulator(r) => push(
-                    &mut devices,
-                    Device::Regulator(Regulator {
-                        input: pins[0],
-                        output: pins[1],
-                        common: pins[2],
-                        params: r.clone(),
-                    }),
-                    1.0,
-                ),
+                PartSpec::Regulator(r) => {
+                    let branch = new_unknown(
+                        &mut unknowns,
+                        format!("i({}.pass)", part.name),
+                        UnknownKind::Branch { part: pi },
+                    );
+                    push(
+                        &mut devices,
+                        Device::Regulator(Regulator {
+                            input: pins[0],
+                            output: pins[1],
+                            common: pins[2],
+                            branch,
+                            params: r.clone(),
+                        }),
+                        1.0,
+                    );
+                }
                 PartSpec::Relay(r) => {
                     let coil_branch = new_unknown(
                         &mut unknowns,
