@@ -39,3 +39,16 @@ fn transformer_supply_one_second(bencher: divan::Bencher) {
         divan::black_box(state.stats.accepted_steps)
     });
 }
+
+/// One simulated second of the reference guard powering up from rest (relay picks up at
+/// about 0.71 s).
+#[divan::bench(sample_count = 10)]
+fn reference_guard_one_second(bencher: divan::Bencher) {
+    let circuit = parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+    bencher.bench_local(|| {
+        let mut sim = Simulator::new(&circuit, Settings::default());
+        let mut state = sim.start(Start::Rest).unwrap();
+        sim.advance(&mut state, 1.0, &mut ()).unwrap();
+        divan::black_box(state.stats.accepted_steps)
+    });
+}
