@@ -84,9 +84,17 @@ impl Junction {
     }
 
     /// Limits the new junction voltage against the previous iteration's, forward and (for
-    /// a breakdown junction) mirrored into the reverse direction.
+    /// a breakdown junction) mirrored into the reverse direction; returns the voltage to
+    /// linearise at and whether a step was cut short (the iteration then cannot be the
+    /// last).
+    ///
+    /// Turning off from forward conduction, plain Newton creeps down by about n Vt per
+    /// iteration (the tangent at a high current is steep). Instead the junction jumps to the
+    /// voltage that carries the current the tangent predicts: the exponential is convex, so
+    /// that voltage lies below the tangent's and never beyond the solution. This lands on
+    /// the junction's own curve, so it does not count as a cut.
     #[inline]
-    fn limit(&self, v_new: f64, v_old: f64) -> f64 {
+    fn limit(&self, v_new: f64, v_old: f64) -> (f64, bool) {
         let mut v = limit_junction(v_new, v_old, self.n_vt, self.v_crit);
         if let Some((bv, _, nb_vt, v_crit)) = self.breakdown {
             if v < 0.0 {
@@ -94,7 +102,20 @@ impl Junction {
                 v = -u - bv;
             }
         }
-        v
+        let cut = (v - v_new).abs() > 1e-12;
+        if v < v_old && v_old > 0.0 {
+            let (e, _) = limited_exp(v_old / self.n_vt);
+            let i_old = self.is * (e - 1.0);
+            let g_old = self.is * e / self.n_vt;
+            let i_predicted = i_old + g_old * (v - v_old);
+            if i_predicted > 0.0 {
+                let v_current = self.n_vt * (i_predicted / self.is).ln_1p();
+                if v_current < v {
+                    v = v_current;
+                }
+            }
+        }
+        (v, cut)
     }
 
     /// Where Newton limiting starts for a step (see `Device::begin_newton`).
@@ -119,7 +140,7 @@ impl Junction {
         scratch: &mut [f64],
     ) {
         let v_guess = x[p] - x[n];
-        let v = self.limit(v_guess, scratch[0]);
+        let (v, cut) = self.limit(v_guess, scratch[0]);
         let (i, g) = self.current(v);
         let g = g + ctx.gmin;
         let i = i + ctx.gmin * v;
@@ -129,11 +150,7 @@ impl Junction {
         scratch[0] = v;
         scratch[1] = g;
         scratch[2] = i_eq;
-        scratch[3] = if (v - v_guess).abs() > 1e-12 {
-            1.0
-        } else {
-            0.0
-        };
+        scratch[3] = if cut { 1.0 } else { 0.0 };
     }
 
     /// Whether the last linearisation predicts the current at `v` well enough.
