@@ -108,6 +108,9 @@ pub struct RunStats {
     pub factorizations: u64,
     /// Factorisations that had to choose a new pivot order.
     pub reorders: u64,
+    /// Operating-point solves made by gmin stepping or source stepping (0 when plain
+    /// Newton found it).
+    pub stepping_solves: u64,
     /// Breakpoints and discrete events after which integration restarted.
     pub restarts: u64,
     /// Discrete state changes located in time.
@@ -457,6 +460,7 @@ impl Simulator {
         let mut gmin_ok = true;
         state.x.iter_mut().for_each(|v| *v = 0.0);
         for exponent in 2..=12 {
+            state.stats.stepping_solves += 1;
             ctx.shunt = 10f64.powi(-exponent).max(self.settings.gmin);
             if self.newton(state, &ctx, iterations, true).is_err() {
                 gmin_ok = false;
@@ -479,6 +483,7 @@ impl Simulator {
         while scale < 1.0 {
             let target = (scale + increment).min(1.0);
             ctx.source_scale = target;
+            state.stats.stepping_solves += 1;
             match self.newton(state, &ctx, iterations, true) {
                 Ok(()) => {
                     state.x.copy_from_slice(&self.ws.x_sol);
