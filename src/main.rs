@@ -16,6 +16,8 @@ use sagtrip::circuit_file::parse_circuit;
 use sagtrip::engine::{Settings, Simulator, Start};
 use sagtrip::output::write_atomic;
 use sagtrip::probe::{Probe, Trace};
+use sagtrip::profile::{iec_presets, resolve, DEFAULT_EDGE_S};
+use sagtrip::scenario::{find_mains, run_event, EventOptions};
 use sagtrip::summary::{relay_timelines, settled_values};
 use sagtrip::units::{parse_value, Engineering, Quantity};
 
@@ -49,8 +51,11 @@ enum Command {
         #[arg(long)]
         circuit: Option<PathBuf>,
     },
-    /// Simulate a circuit in the time domain and summarise the probed quantities.
+    /// Simulate a circuit: a power-up, or with --event a supply disturbance and the
+    /// protector's measured response.
     Run(RunArgs),
+    /// List the built-in IEC 61000-4-11 test profiles usable with --event.
+    Profiles,
 }
 
 #[derive(Args)]
@@ -84,6 +89,28 @@ struct RunArgs {
     /// List every discrete event (relay armature and contacts, switches, timers).
     #[arg(long)]
     events: bool,
+    /// Supply disturbance to apply after power-up: a compact spec such as
+    /// dip:40%:10cyc@90, interrupt:250cyc, swell:120%:25cyc, vary:70%:0cyc/1cyc/25cyc,
+    /// ramp:100%-65%:20s (items joined by `;`, with gap:DURATION between), or a preset name
+    /// from `sagtrip profiles` such as class3-dip-40 (optionally @DEGREES).
+    #[arg(long)]
+    event: Option<String>,
+    /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
+    #[arg(long)]
+    nominal: Option<String>,
+    /// The source part driven as the mains (default: the only sine voltage source).
+    #[arg(long)]
+    mains: Option<String>,
+    /// The relay switching the load (default: the only relay).
+    #[arg(long)]
+    relay: Option<String>,
+    /// The logic supply-rail node watched for brown-out (default: vcc, or the regulator
+    /// output).
+    #[arg(long)]
+    rail: Option<String>,
+    /// Rise and fall time of abrupt changes (default 5us).
+    #[arg(long)]
+    edge: Option<String>,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -98,7 +125,14 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Check { circuit } => check(circuit.as_deref()),
-        Command::Run(args) => run(&args),
+        Command::Run(args) => {
+            if args.event.is_some() {
+                run_event_command(&args)
+            } else {
+                run(&args)
+            }
+        }
+        Command::Profiles => Ok(profiles()),
     };
     match result {
         Ok(text) => {
@@ -491,6 +525,190 @@ fn run(args: &RunArgs) -> Result<String, String> {
             "\ntrace: {} rows x {} probes written to {}",
             trace.time.len(),
             trace.probes.len(),
+            path.display()
+        );
+    }
+    Ok(out)
+}
+
+fn profiles() -> String {
+    let mut out = String::new();
+    say!(
+        out,
+        "Preferred test levels and durations of IEC 61000-4-11 (use with --event NAME[@DEGREES]):\n"
+    );
+    say!(
+        out,
+        "{:<22} {:<6} {:<28} {:<28} source",
+        "name",
+        "class",
+        "at 50 Hz",
+        "at 60 Hz"
+    );
+    for p in iec_presets() {
+        say!(
+            out,
+            "{:<22} {:<6} {:<28} {:<28} {}",
+            p.name,
+            p.class,
+            p.profile_50hz.spec(),
+            p.profile_60hz.spec(),
+            p.table
+        );
+    }
+    say!(
+        out,
+        "\nLevels are the residual voltage in % of nominal; abrupt changes start at 0 degrees\n\
+         unless @DEGREES is given and take {} to change. Each test is normally applied three\n\
+         times at least 10 s apart; sagtrip simulates one application.",
+        Engineering(DEFAULT_EDGE_S, Quantity::Time)
+    );
+    out
+}
+
+/// Reads `--nominal 230V/50Hz`.
+fn nominal_option(text: &str) -> Result<(f64, f64), String> {
+    let (v, f) = text
+        .split_once('/')
+        .ok_or_else(|| format!("--nominal {text}: expected VOLTS/HERTZ, e.g. 230V/50Hz"))?;
+    let v = parse_value(v, Quantity::Voltage).map_err(|e| format!("--nominal {text}: {e}"))?;
+    let f = parse_value(f, Quantity::Frequency).map_err(|e| format!("--nominal {text}: {e}"))?;
+    if v <= 0.0 || f <= 0.0 {
+        return Err(format!("--nominal {text}: both values must be positive"));
+    }
+    Ok((v, f))
+}
+
+fn run_event_command(args: &RunArgs) -> Result<String, String> {
+    let mut out = String::new();
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let mut options = EventOptions {
+        nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
+        mains: args.mains.clone(),
+        relay: args.relay.clone(),
+        rail: args.rail.clone(),
+        ..EventOptions::default()
+    };
+    if let Some(step) = time_option(&args.max_step, "max-step")? {
+        options.settings.max_step_s = step;
+    }
+    let edge = time_option(&args.edge, "edge")?.unwrap_or(DEFAULT_EDGE_S);
+    options.probes = args
+        .probes
+        .iter()
+        .map(|p| Probe::parse(p, &circuit).map_err(|e| format!("--probe {p}: {e}")))
+        .collect::<Result<Vec<_>, _>>()?;
+    let mains =
+        find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
+    let frequency = options.nominal.map_or(mains.frequency_hz, |n| n.1);
+    let spec = args.event.as_deref().unwrap_or_default();
+    let profile = resolve(spec, frequency, edge).map_err(|e| format!("--event: {e}"))?;
+
+    let started = Instant::now();
+    let result = run_event(&circuit, &profile, &options).map_err(|e| format!("{name}: {e}"))?;
+    let wall = started.elapsed().as_secs_f64();
+    if let Some(path) = &args.trace {
+        write_atomic(path, |w| result.trace.write_csv(&circuit, w))
+            .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
+    }
+    let m = &result.measurements;
+    if args.json {
+        let mut value = serde_json::to_value(m).unwrap_or_default();
+        if let serde_json::Value::Object(map) = &mut value {
+            let extra = serde_json::json!({
+                "circuit": name,
+                "event": result.event,
+                "nominal_rms_v": result.nominal_rms_v,
+                "frequency_hz": result.frequency_hz,
+                "phase_deg": profile.phase_deg,
+                "onset_s": result.onset_s,
+                "event_end_s": result.event_end_s,
+                "run_end_s": result.run_end_s,
+                "settled_before": result.settled,
+                "settled_after": result.settled_after,
+                "min_rail_v": result.min_rail_v,
+                "rail": result.rail,
+                "comparator_toggles": result.comparator_toggles,
+                "stats": result.stats,
+                "wall_time_s": wall,
+            });
+            if let serde_json::Value::Object(extra) = extra {
+                map.extend(extra);
+            }
+        }
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+    let ms = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:.2} ms"));
+    say!(out, "{name}: {}", circuit.title);
+    say!(
+        out,
+        "event {} on {:.1} V / {} Hz, onset at {:.4} s (powered up and settled at {:.3} s{}), event end at {:.4} s",
+        result.event,
+        result.nominal_rms_v,
+        result.frequency_hz,
+        result.onset_s,
+        result.settled_at_s,
+        if result.settled { "" } else { ", NOT settled within the limit" },
+        result.event_end_s
+    );
+    say!(out);
+    say!(
+        out,
+        "  tripped                 {}",
+        if m.tripped {
+            "yes"
+        } else {
+            "no (rode through)"
+        }
+    );
+    say!(out, "  trip latency            {}", ms(m.trip_latency_ms));
+    say!(
+        out,
+        "  restore latency         {}",
+        ms(m.restore_latency_ms)
+    );
+    say!(out, "  relay release time      {}", ms(m.release_time_ms));
+    say!(out, "  relay operate time      {}", ms(m.operate_time_ms));
+    say!(out, "  contact bounce          {}", ms(m.bounce_ms));
+    say!(out, "  armature transitions    {}", m.relay_transitions);
+    say!(
+        out,
+        "  chatter                 {}",
+        if m.chatter { "YES" } else { "no" }
+    );
+    say!(
+        out,
+        "  load interruption       {:.2} ms",
+        m.load_interruption_ms
+    );
+    if let (Some(v), Some(rail)) = (result.min_rail_v, &result.rail) {
+        say!(out, "  minimum rail ({rail})      {v:.3} V");
+    }
+    for (comparator, n) in &result.comparator_toggles {
+        say!(out, "  {comparator:<22}  {n} output toggles");
+    }
+    say!(
+        out,
+        "\nrun ended at {:.3} s ({}); {} steps, {:.3} s wall",
+        result.run_end_s,
+        if result.settled_after {
+            "restored and settled"
+        } else {
+            "limit reached before the protector restored and settled"
+        },
+        result.stats.accepted_steps,
+        wall
+    );
+    if let Some(path) = &args.trace {
+        say!(
+            out,
+            "trace: {} rows written to {}",
+            result.trace.time.len(),
             path.display()
         );
     }

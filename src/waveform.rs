@@ -5,6 +5,8 @@
 
 use std::f64::consts::PI;
 
+use crate::profile::Envelope;
+
 /// A source's value over time. Values are volts for voltage sources, amperes for current
 /// sources.
 #[derive(Clone, Debug, PartialEq)]
@@ -21,6 +23,20 @@ pub enum Waveform {
         phase_deg: f64,
         /// Constant added to the sine.
         offset: f64,
+    },
+    /// A mains sine whose RMS level follows a disturbance envelope:
+    /// `level(t - onset_s) amplitude sin(2 pi frequency t + phase)`.
+    Disturbed {
+        /// Nominal peak value.
+        amplitude: f64,
+        /// Frequency in hertz.
+        frequency_hz: f64,
+        /// Phase at t = 0, in degrees.
+        phase_deg: f64,
+        /// Time of the first event's onset, seconds.
+        onset_s: f64,
+        /// The level over time since onset.
+        envelope: Envelope,
     },
     /// `before` until `at_s`, then `after`: an ideal step with a breakpoint at `at_s`.
     Step {
@@ -50,6 +66,17 @@ impl Waveform {
                 phase_deg,
                 offset,
             } => offset + amplitude * (2.0 * PI * frequency_hz * t + phase_deg.to_radians()).sin(),
+            Waveform::Disturbed {
+                amplitude,
+                frequency_hz,
+                phase_deg,
+                onset_s,
+                ref envelope,
+            } => {
+                envelope.level(t - onset_s)
+                    * amplitude
+                    * (2.0 * PI * frequency_hz * t + phase_deg.to_radians()).sin()
+            }
             Waveform::Step {
                 before,
                 after,
@@ -85,6 +112,18 @@ impl Waveform {
     pub fn next_breakpoint(&self, t: f64) -> f64 {
         match *self {
             Waveform::Step { at_s, .. } if at_s > t => at_s,
+            Waveform::Disturbed {
+                onset_s,
+                ref envelope,
+                ..
+            } => {
+                let since = t - onset_s;
+                let points = &envelope.points;
+                let k = points.partition_point(|&(time, _)| time <= since);
+                points
+                    .get(k)
+                    .map_or(f64::INFINITY, |&(time, _)| onset_s + time)
+            }
             _ => f64::INFINITY,
         }
     }
@@ -92,7 +131,9 @@ impl Waveform {
     /// The fundamental frequency of a periodic waveform, if it has one.
     pub fn frequency_hz(&self) -> Option<f64> {
         match *self {
-            Waveform::Sine { frequency_hz, .. } => Some(frequency_hz),
+            Waveform::Sine { frequency_hz, .. } | Waveform::Disturbed { frequency_hz, .. } => {
+                Some(frequency_hz)
+            }
             _ => None,
         }
     }
@@ -129,6 +170,16 @@ impl std::fmt::Display for Waveform {
             } => {
                 write!(f, "step {before} to {after} at {at_s} s")
             }
+            Waveform::Disturbed {
+                amplitude,
+                frequency_hz,
+                onset_s,
+                ..
+            } => write!(
+                f,
+                "disturbed sine {:.4} rms nominal, {frequency_hz} Hz, onset at {onset_s} s",
+                amplitude / std::f64::consts::SQRT_2
+            ),
         }
     }
 }

@@ -18,7 +18,8 @@ pub use lu::{DenseLu, RefactorError, Singular, SparseLu};
 pub use network::{Network, UnknownKind};
 
 use crate::circuit::Circuit;
-use crate::devices::{Method, Mna, Mode, SolveContext};
+use crate::devices::{Device, Method, Mna, Mode, SolveContext};
+use crate::waveform::Waveform;
 
 /// Tolerances and step limits of a run.
 #[derive(Clone, Debug, PartialEq)]
@@ -217,6 +218,9 @@ pub enum SimError {
         /// The node or part it belongs to.
         owner: String,
     },
+    /// A waveform was given to a part that is not a source.
+    #[error("part `{0}` is not a voltage or current source")]
+    NotASource(String),
     /// The operating point could not be found by plain Newton, gmin stepping or source
     /// stepping.
     #[error("no operating point: plain Newton, gmin stepping and source stepping all failed; last failure: {0}")]
@@ -1035,9 +1039,42 @@ impl Simulator {
     pub fn part_current(&self, state: &SimState, part: usize) -> f64 {
         self.network.part_current(state, part)
     }
+
+    /// Replaces the waveform of source part `part` (a voltage or current source). The
+    /// state is unaffected: a run continues with the new waveform from its present time, so
+    /// a waveform that agrees with the old one up to then joins without a step.
+    pub fn set_source_waveform(&mut self, part: usize, waveform: Waveform) -> Result<(), SimError> {
+        let mut found = false;
+        for &(d, _) in &self.network.part_devices[part] {
+            if let Device::VoltageSource { waveform: w, .. }
+            | Device::CurrentSource { waveform: w, .. } = &mut self.network.devices[d]
+            {
+                *w = waveform.clone();
+                found = true;
+            }
+        }
+        if found {
+            Ok(())
+        } else {
+            Err(SimError::NotASource(
+                self.network.circuit.parts[part].name.clone(),
+            ))
+        }
+    }
 }
 
 impl Network {
+    /// The discrete modes of a part's devices at a state.
+    pub fn part_modes<'a>(
+        &'a self,
+        state: &'a SimState,
+        part: usize,
+    ) -> impl Iterator<Item = Mode> + 'a {
+        self.part_devices[part]
+            .iter()
+            .map(move |&(d, _)| state.mode(d))
+    }
+
     /// Current into the first pin of part `part` (and out of its second), amperes.
     /// For a transformer this is the primary current; for a bridge, the current into `ac_a`.
     pub fn part_current(&self, state: &SimState, part: usize) -> f64 {

@@ -1,0 +1,260 @@
+//! Timing measurements of a protector's response to a supply event, as pure functions of a
+//! run's located events and recorded samples. Every quantity is defined in
+//! `docs/measurements.md`; the definitions here are the reference.
+
+use serde::Serialize;
+
+use crate::engine::{DiscreteEvent, EventKind};
+
+/// Where the measurements look: the event's timing and the relay whose normally-open
+/// contact switches the load.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Window {
+    /// Onset of the first disturbance, seconds.
+    pub onset_s: f64,
+    /// End of the last disturbance (the supply back at nominal), seconds.
+    pub event_end_s: f64,
+    /// End of the run, seconds.
+    pub run_end_s: f64,
+    /// Number of disturbances in the event (gaps excluded).
+    pub disturbances: usize,
+    /// Index of the load relay's part.
+    pub relay_part: usize,
+    /// Whether the load path (normally-open contact) was closed at onset.
+    pub closed_at_onset: bool,
+}
+
+/// The measured response. Times in milliseconds.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Measurements {
+    /// The load path opened at least once at or after onset.
+    pub tripped: bool,
+    /// Onset to the first opening of the load path.
+    pub trip_latency_ms: Option<f64>,
+    /// End of the event to the final reconnection of the load path (after its bounce);
+    /// `None` if it did not trip or is still open at the end of the run.
+    pub restore_latency_ms: Option<f64>,
+    /// First drop-out at or after onset to the load path opening.
+    pub release_time_ms: Option<f64>,
+    /// Last pick-up to the first making of the load path after it.
+    pub operate_time_ms: Option<f64>,
+    /// First to last making of the load path in its final closure.
+    pub bounce_ms: Option<f64>,
+    /// Armature pick-ups and drop-outs at or after onset.
+    pub relay_transitions: usize,
+    /// More armature transitions than one drop-out and one pick-up per disturbance, or a
+    /// comparator output toggling more than twice per disturbance.
+    pub chatter: bool,
+    /// Time the load path was open between onset and the end of the run.
+    pub load_interruption_ms: f64,
+    /// Whether the load path is closed at the end of the run.
+    pub load_connected_at_end: bool,
+}
+
+/// Measures the relay's response from its located events.
+pub fn measure(
+    events: &[DiscreteEvent],
+    window: &Window,
+    comparator_toggles: &[usize],
+) -> Measurements {
+    let mine: Vec<&DiscreteEvent> = events
+        .iter()
+        .filter(|e| e.part == window.relay_part && e.time >= window.onset_s - 1e-12)
+        .collect();
+    let ms = |s: f64| s * 1e3;
+    let first = |kind: EventKind, after: f64| {
+        mine.iter()
+            .find(|e| e.kind == kind && e.time >= after - 1e-12)
+            .map(|e| e.time)
+    };
+    let first_break = first(EventKind::NormallyOpenBroken, window.onset_s);
+    let tripped = window.closed_at_onset && first_break.is_some();
+
+    // Load path open intervals from onset to the end of the run.
+    let mut closed = window.closed_at_onset;
+    let mut opened_at = window.onset_s;
+    let mut open_total = 0.0;
+    let mut last_make: Option<f64> = None;
+    for e in &mine {
+        match e.kind {
+            EventKind::NormallyOpenBroken if closed => {
+                closed = false;
+                opened_at = e.time;
+            }
+            EventKind::NormallyOpenMade if !closed => {
+                closed = true;
+                open_total += e.time - opened_at;
+                last_make = Some(e.time);
+            }
+            _ => {}
+        }
+    }
+    if !closed {
+        open_total += window.run_end_s - opened_at;
+    }
+
+    let dropout = first(EventKind::DropOut, window.onset_s);
+    let release_time_ms =
+        dropout.and_then(|d| first(EventKind::NormallyOpenBroken, d).map(|b| ms(b - d)));
+    let last_pickup = mine
+        .iter()
+        .rev()
+        .find(|e| e.kind == EventKind::PickUp)
+        .map(|e| e.time);
+    let first_make_after_pickup = last_pickup.and_then(|p| first(EventKind::NormallyOpenMade, p));
+    let operate_time_ms = last_pickup
+        .zip(first_make_after_pickup)
+        .map(|(p, m)| ms(m - p));
+    let restored = tripped && closed;
+    let restore_latency_ms = if restored {
+        last_make.map(|m| ms(m - window.event_end_s))
+    } else {
+        None
+    };
+    let bounce_ms = if restored {
+        first_make_after_pickup
+            .zip(last_make)
+            .map(|(f, l)| ms(l - f))
+    } else {
+        None
+    };
+    let relay_transitions = mine
+        .iter()
+        .filter(|e| matches!(e.kind, EventKind::PickUp | EventKind::DropOut))
+        .count();
+    let allowed = 2 * window.disturbances.max(1);
+    let chatter = relay_transitions > allowed || comparator_toggles.iter().any(|&t| t > allowed);
+    Measurements {
+        tripped,
+        trip_latency_ms: if tripped {
+            first_break.map(|b| ms(b - window.onset_s))
+        } else {
+            None
+        },
+        restore_latency_ms,
+        release_time_ms,
+        operate_time_ms,
+        bounce_ms,
+        relay_transitions,
+        chatter,
+        load_interruption_ms: ms(open_total),
+        load_connected_at_end: closed,
+    }
+}
+
+/// How many times a logic-level signal crosses the middle of its recorded range, from
+/// `from_s` on, counting only where `powered` holds for both samples (a comparator whose
+/// supply collapses swings without deciding anything). A signal that never spans at least
+/// `min_swing` counts no crossings.
+pub fn toggles(
+    time: &[f64],
+    values: &[f64],
+    from_s: f64,
+    min_swing: f64,
+    powered: &dyn Fn(usize) -> bool,
+) -> usize {
+    let lo = values.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = values.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let swing = hi - lo;
+    if swing.is_nan() || swing < min_swing {
+        return 0;
+    }
+    let mid = 0.5 * (lo + hi);
+    let start = time.partition_point(|&t| t < from_s).max(1);
+    (start..values.len())
+        .filter(|&k| (values[k - 1] < mid) != (values[k] < mid) && powered(k - 1) && powered(k))
+        .count()
+}
+
+/// The smallest sample of `values` at or after `from_s`.
+pub fn minimum_after(time: &[f64], values: &[f64], from_s: f64) -> Option<f64> {
+    let start = time.partition_point(|&t| t < from_s);
+    values[start..].iter().copied().reduce(f64::min)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn event(time: f64, kind: EventKind) -> DiscreteEvent {
+        DiscreteEvent {
+            time,
+            part: 3,
+            kind,
+        }
+    }
+
+    fn window() -> Window {
+        Window {
+            onset_s: 1.0,
+            event_end_s: 1.2,
+            run_end_s: 3.0,
+            disturbances: 1,
+            relay_part: 3,
+            closed_at_onset: true,
+        }
+    }
+
+    #[test]
+    fn a_trip_and_restore_with_bounce() {
+        // Synthetic timeline with known answers (docs/measurements.md definitions).
+        let events = [
+            event(1.050, EventKind::DropOut),
+            event(1.053, EventKind::NormallyOpenBroken),
+            event(1.053, EventKind::NormallyClosedMade),
+            event(1.900, EventKind::PickUp),
+            event(1.906, EventKind::NormallyClosedBroken),
+            event(1.906, EventKind::NormallyOpenMade),
+            event(1.9065, EventKind::NormallyOpenBroken),
+            event(1.907, EventKind::NormallyOpenMade),
+        ];
+        let m = measure(&events, &window(), &[2, 2]);
+        assert!(m.tripped);
+        assert!((m.trip_latency_ms.unwrap() - 53.0).abs() < 1e-9);
+        assert!((m.release_time_ms.unwrap() - 3.0).abs() < 1e-9);
+        assert!((m.operate_time_ms.unwrap() - 6.0).abs() < 1e-9);
+        assert!((m.bounce_ms.unwrap() - 1.0).abs() < 1e-9);
+        // Restore: event end 1.2 s to the final make at 1.907 s.
+        assert!((m.restore_latency_ms.unwrap() - 707.0).abs() < 1e-9);
+        // Open 1.053 .. 1.906 and 1.9065 .. 1.907.
+        assert!((m.load_interruption_ms - (853.0 + 0.5)).abs() < 1e-9);
+        assert_eq!(m.relay_transitions, 2);
+        assert!(!m.chatter);
+        assert!(m.load_connected_at_end);
+    }
+
+    #[test]
+    fn ride_through_and_chatter() {
+        let m = measure(&[], &window(), &[0]);
+        assert!(!m.tripped);
+        assert_eq!(m.trip_latency_ms, None);
+        assert_eq!(m.restore_latency_ms, None);
+        assert_eq!(m.load_interruption_ms, 0.0);
+        let events = [
+            event(1.1, EventKind::DropOut),
+            event(1.103, EventKind::NormallyOpenBroken),
+            event(1.2, EventKind::PickUp),
+            event(1.3, EventKind::DropOut),
+        ];
+        let m = measure(&events, &window(), &[]);
+        assert_eq!(m.relay_transitions, 3);
+        assert!(m.chatter);
+        // Never reconnected: open from 1.103 s to the end of the run.
+        assert!((m.load_interruption_ms - 1897.0).abs() < 1e-9);
+        assert_eq!(m.restore_latency_ms, None);
+        // A comparator toggling five times is chatter even with a quiet relay.
+        assert!(measure(&[], &window(), &[5]).chatter);
+    }
+
+    #[test]
+    fn toggle_counting() {
+        let t: Vec<f64> = (0..10).map(f64::from).collect();
+        let v = [0.0, 0.0, 10.0, 10.0, 0.0, 10.0, 10.0, 10.0, 0.0, 0.0];
+        let always = |_| true;
+        assert_eq!(toggles(&t, &v, 0.0, 1.0, &always), 4);
+        assert_eq!(toggles(&t, &v, 4.5, 1.0, &always), 2);
+        assert_eq!(toggles(&t, &[1.0; 10], 0.0, 1.0, &always), 0);
+        // Unpowered from sample 3 to 6: the crossings there do not count.
+        assert_eq!(toggles(&t, &v, 0.0, 1.0, &|k| !(3..=6).contains(&k)), 2);
+    }
+}

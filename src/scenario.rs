@@ -1,0 +1,469 @@
+//! One-event runs: power the protector up, wait until it has settled, apply a disturbance
+//! profile at a cycle boundary plus its phase angle, run until it has restored and settled
+//! again (or a limit), and measure.
+
+use serde::Serialize;
+
+use crate::circuit::{Circuit, PartSpec};
+use crate::engine::{
+    DiscreteEvent, Network, Observer, RunStats, Settings, SimError, SimState, Simulator, Start,
+};
+use crate::measure::{measure, minimum_after, toggles, Measurements, Window};
+use crate::probe::{Probe, Trace};
+use crate::profile::{Envelope, Profile};
+use crate::waveform::Waveform;
+
+/// The supply the profile drives.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Mains {
+    /// Index of the source part.
+    pub part: usize,
+    /// Nominal RMS voltage, volts.
+    pub rms: f64,
+    /// Frequency, hertz.
+    pub frequency_hz: f64,
+    /// Phase of the source at t = 0, degrees.
+    pub phase_deg: f64,
+}
+
+/// Why an event run could not be made.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ScenarioError {
+    /// No voltage source with a sine waveform to drive, or the one named is not one.
+    #[error("{0}")]
+    NoMains(String),
+    /// A named relay or node does not exist.
+    #[error("{0}")]
+    Unknown(String),
+    /// The simulation failed.
+    #[error(transparent)]
+    Simulation(#[from] SimError),
+}
+
+/// Finds the mains source: the part named `name`, or the only sine voltage source.
+pub fn find_mains(circuit: &Circuit, name: Option<&str>) -> Result<Mains, ScenarioError> {
+    let candidates: Vec<usize> = circuit
+        .parts
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| matches!(p.spec, PartSpec::VoltageSource(Waveform::Sine { .. })))
+        .map(|(i, _)| i)
+        .collect();
+    let part = match name {
+        Some(n) => circuit
+            .part(n)
+            .filter(|i| candidates.contains(i))
+            .ok_or_else(|| {
+                ScenarioError::NoMains(format!(
+                    "`{n}` is not a sine voltage source of the circuit (sine sources: {})",
+                    names(circuit, &candidates)
+                ))
+            })?,
+        None => match candidates.as_slice() {
+            [one] => *one,
+            [] => {
+                return Err(ScenarioError::NoMains(
+                    "the circuit has no sine voltage source to drive as the mains".into(),
+                ))
+            }
+            _ => {
+                return Err(ScenarioError::NoMains(format!(
+                    "several sine voltage sources ({}): name the mains with --mains",
+                    names(circuit, &candidates)
+                )))
+            }
+        },
+    };
+    let PartSpec::VoltageSource(Waveform::Sine {
+        amplitude,
+        frequency_hz,
+        phase_deg,
+        ..
+    }) = circuit.parts[part].spec
+    else {
+        unreachable!("candidates are sine voltage sources")
+    };
+    Ok(Mains {
+        part,
+        rms: amplitude / std::f64::consts::SQRT_2,
+        frequency_hz,
+        phase_deg,
+    })
+}
+
+fn names(circuit: &Circuit, parts: &[usize]) -> String {
+    if parts.is_empty() {
+        return "none".into();
+    }
+    parts
+        .iter()
+        .map(|&i| circuit.parts[i].name.as_str())
+        .collect::<Vec<_>>()
+        .join(", ")
+}
+
+/// Options of an event run.
+#[derive(Clone, Debug)]
+pub struct EventOptions {
+    /// Override of the nominal RMS voltage and frequency.
+    pub nominal: Option<(f64, f64)>,
+    /// Name of the mains source part (default: the only sine voltage source).
+    pub mains: Option<String>,
+    /// Name of the relay switching the load (default: the only relay).
+    pub relay: Option<String>,
+    /// Name of the logic supply-rail node (default: `vcc` if present, else the output of
+    /// the only regulator).
+    pub rail: Option<String>,
+    /// Settled: successive cycle boundaries agree within this fraction of each node's
+    /// voltage (or of 1 V, whichever is larger). Default 0.5%.
+    pub settle_tolerance: f64,
+    /// Settled also needs this many quiet cycles in a row (no discrete change). Default 3.
+    pub settle_cycles: usize,
+    /// Longest power-up before the event, seconds. Default 20 s.
+    pub settle_limit_s: f64,
+    /// Longest run after the event's end, seconds. Default 10 s.
+    pub restore_limit_s: f64,
+    /// Cycles recorded before the onset. Default 2.
+    pub pre_cycles: usize,
+    /// Engine settings.
+    pub settings: Settings,
+    /// Extra probes to record (besides mains, rail and comparator outputs).
+    pub probes: Vec<Probe>,
+}
+
+impl Default for EventOptions {
+    fn default() -> Self {
+        Self {
+            nominal: None,
+            mains: None,
+            relay: None,
+            rail: None,
+            settle_tolerance: 5e-3,
+            settle_cycles: 3,
+            settle_limit_s: 20.0,
+            restore_limit_s: 10.0,
+            pre_cycles: 2,
+            settings: Settings::default(),
+            probes: Vec::new(),
+        }
+    }
+}
+
+/// The result of an event run.
+#[derive(Clone, Debug, Serialize)]
+pub struct EventRun {
+    /// The event in compact form.
+    pub event: String,
+    /// Nominal RMS voltage and frequency used.
+    pub nominal_rms_v: f64,
+    /// Nominal frequency, hertz.
+    pub frequency_hz: f64,
+    /// When the power-up was judged settled, seconds.
+    pub settled_at_s: f64,
+    /// Whether the power-up settled within the limit (the event is applied either way).
+    pub settled: bool,
+    /// Onset of the first disturbance, seconds.
+    pub onset_s: f64,
+    /// End of the event, seconds.
+    pub event_end_s: f64,
+    /// End of the run, seconds.
+    pub run_end_s: f64,
+    /// Whether the protector was back in its pre-event state and settled by the end.
+    pub settled_after: bool,
+    /// The timing measurements.
+    pub measurements: Measurements,
+    /// Smallest supply-rail voltage from onset to the end of the run, volts.
+    pub min_rail_v: Option<f64>,
+    /// The rail node measured.
+    pub rail: Option<String>,
+    /// Output toggles of each comparator from onset on.
+    pub comparator_toggles: Vec<(String, usize)>,
+    /// Solver counters of the whole run (power-up included).
+    pub stats: RunStats,
+    /// Recorded waveforms from `pre_cycles` before the onset.
+    #[serde(skip)]
+    pub trace: Trace,
+    /// The envelope applied.
+    #[serde(skip)]
+    pub envelope: Envelope,
+}
+
+/// Counts discrete events (for the settling test) and forwards to an optional trace.
+struct Watch<'a> {
+    events: usize,
+    trace: Option<&'a mut Trace>,
+}
+
+impl Observer for Watch<'_> {
+    fn step(&mut self, network: &Network, state: &SimState) {
+        if let Some(t) = self.trace.as_deref_mut() {
+            t.record(network, state);
+        }
+    }
+    fn event(&mut self, network: &Network, event: &DiscreteEvent) {
+        self.events += 1;
+        if let Some(t) = self.trace.as_deref_mut() {
+            t.event(network, event);
+        }
+    }
+}
+
+/// Whether two cycle-boundary solutions agree within `tolerance` on every node.
+fn periodic(a: &[f64], b: &[f64], nodes: usize, tolerance: f64) -> bool {
+    (1..nodes).all(|i| (a[i] - b[i]).abs() <= tolerance * a[i].abs().max(b[i].abs()).max(1.0))
+}
+
+/// Advances cycle by cycle until `done` holds for the state and the last `quiet` cycles
+/// were periodic and free of discrete changes, or `limit_s` is reached. Returns whether it
+/// settled.
+#[allow(clippy::too_many_arguments)]
+fn run_until_settled(
+    sim: &mut Simulator,
+    state: &mut SimState,
+    period: f64,
+    first_boundary: f64,
+    options: &EventOptions,
+    limit_s: f64,
+    trace: &mut Option<&mut Trace>,
+    done: &dyn Fn(&Simulator, &SimState) -> bool,
+) -> Result<bool, SimError> {
+    let nodes = sim.network().circuit().nodes.len();
+    let mut previous = state.solution().to_vec();
+    let mut quiet = 0;
+    let mut boundary = first_boundary;
+    while boundary <= limit_s + 1e-12 {
+        let mut watch = Watch {
+            events: 0,
+            trace: trace.as_deref_mut(),
+        };
+        sim.advance(state, boundary, &mut watch)?;
+        let now = state.solution();
+        let calm = watch.events == 0 && state.pending().is_empty();
+        if calm && periodic(&previous, now, nodes, options.settle_tolerance) {
+            quiet += 1;
+        } else {
+            quiet = 0;
+        }
+        previous.copy_from_slice(now);
+        if quiet >= options.settle_cycles && done(sim, state) {
+            return Ok(true);
+        }
+        boundary += period;
+    }
+    Ok(false)
+}
+
+/// The relay part switching the load.
+fn find_relay(circuit: &Circuit, name: Option<&str>) -> Result<Option<usize>, ScenarioError> {
+    let relays: Vec<usize> = circuit
+        .parts
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| matches!(p.spec, PartSpec::Relay(_)))
+        .map(|(i, _)| i)
+        .collect();
+    match name {
+        Some(n) => circuit
+            .part(n)
+            .filter(|i| relays.contains(i))
+            .map(Some)
+            .ok_or_else(|| {
+                ScenarioError::Unknown(format!(
+                    "`{n}` is not a relay of the circuit (relays: {})",
+                    names(circuit, &relays)
+                ))
+            }),
+        None => Ok(match relays.as_slice() {
+            [one] => Some(*one),
+            _ => relays.first().copied(),
+        }),
+    }
+}
+
+/// The supply-rail node to watch.
+fn find_rail(circuit: &Circuit, name: Option<&str>) -> Result<Option<usize>, ScenarioError> {
+    if let Some(n) = name {
+        return circuit
+            .node(n)
+            .map(Some)
+            .ok_or_else(|| ScenarioError::Unknown(format!("no node named `{n}` for the rail")));
+    }
+    if let Some(vcc) = circuit.node("vcc") {
+        return Ok(Some(vcc));
+    }
+    Ok(circuit.parts.iter().find_map(|p| match p.spec {
+        PartSpec::Regulator(_) => Some(p.pins[1]),
+        _ => None,
+    }))
+}
+
+/// The relay device's discrete state in a simulator state, if the part is a relay.
+fn relay_state(
+    sim: &Simulator,
+    state: &SimState,
+    part: usize,
+) -> Option<crate::devices::RelayState> {
+    sim.network().part_modes(state, part).find_map(|m| match m {
+        crate::devices::Mode::Relay(r) => Some(r),
+        _ => None,
+    })
+}
+
+/// Powers `circuit` up, applies `profile` and measures the response.
+pub fn run_event(
+    circuit: &Circuit,
+    profile: &Profile,
+    options: &EventOptions,
+) -> Result<EventRun, ScenarioError> {
+    let mains = find_mains(circuit, options.mains.as_deref())?;
+    let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
+    let relay = find_relay(circuit, options.relay.as_deref())?;
+    let rail = find_rail(circuit, options.rail.as_deref())?;
+    let period = 1.0 / frequency_hz;
+    let amplitude = rms * std::f64::consts::SQRT_2;
+    let steady = Waveform::Sine {
+        amplitude,
+        frequency_hz,
+        phase_deg: mains.phase_deg,
+        offset: 0.0,
+    };
+
+    let mut sim = Simulator::new(circuit, options.settings.clone());
+    sim.set_source_waveform(mains.part, steady)?;
+    let mut state = sim.start(Start::Rest)?;
+    // Rising zero crossings of the source: 2 pi f t + phase = 2 pi k.
+    let boundary_offset = -mains.phase_deg / 360.0 * period;
+    let boundary_after = |t: f64| {
+        let k = ((t - boundary_offset) / period - 1e-9).ceil();
+        boundary_offset + k * period
+    };
+
+    // Power-up: settled with the relay in a steady state.
+    let first = boundary_after(period);
+    let settled = run_until_settled(
+        &mut sim,
+        &mut state,
+        period,
+        first,
+        options,
+        options.settle_limit_s,
+        &mut None,
+        &|_, _| true,
+    )?;
+    let settled_at_s = state.time;
+    let pre_event_relay = relay.and_then(|r| relay_state(&sim, &state, r));
+
+    // The event: onset `pre_cycles` after the settled boundary, plus the phase angle.
+    let onset_s = boundary_after(state.time + 1e-9)
+        + options.pre_cycles as f64 * period
+        + profile.phase_deg.rem_euclid(360.0) / 360.0 * period;
+    let envelope = profile.envelope(frequency_hz);
+    let event_end_s = onset_s + envelope.end_s;
+    sim.set_source_waveform(
+        mains.part,
+        Waveform::Disturbed {
+            amplitude,
+            frequency_hz,
+            phase_deg: mains.phase_deg,
+            onset_s,
+            envelope: envelope.clone(),
+        },
+    )?;
+
+    let mut probes = vec![Probe::Voltage {
+        node: circuit.parts[mains.part].pins[0],
+    }];
+    if let Some(node) = rail {
+        probes.push(Probe::Voltage { node });
+    }
+    let comparators: Vec<(String, usize)> = circuit
+        .parts
+        .iter()
+        .filter(|p| matches!(p.spec, PartSpec::Comparator(_)))
+        .map(|p| (p.name.clone(), p.pins[2]))
+        .collect();
+    for (_, node) in &comparators {
+        probes.push(Probe::Voltage { node: *node });
+    }
+    for p in &options.probes {
+        if !probes.contains(p) {
+            probes.push(p.clone());
+        }
+    }
+    let mut trace = Trace::new(probes);
+    trace.record(sim.network(), &state);
+    {
+        let mut watch = Watch {
+            events: 0,
+            trace: Some(&mut trace),
+        };
+        sim.advance(&mut state, event_end_s, &mut watch)?;
+    }
+    // After the event: until the relay is back as it was and all is quiet and periodic.
+    let back = |sim: &Simulator, s: &SimState| match (relay, pre_event_relay) {
+        (Some(r), Some(before)) => relay_state(sim, s, r) == Some(before),
+        _ => true,
+    };
+    let settled_after = run_until_settled(
+        &mut sim,
+        &mut state,
+        period,
+        boundary_after(event_end_s + 1e-9),
+        options,
+        event_end_s + options.restore_limit_s,
+        &mut Some(&mut trace),
+        &back,
+    )?;
+    let run_end_s = state.time;
+
+    // Comparator decisions count only while the logic rail is above 80% of its value at
+    // the start of the recording (a collapsing supply drags outputs without deciding).
+    let rail_column = rail.and_then(|node| trace.column(&Probe::Voltage { node }));
+    let rail_normal = rail_column.and_then(|c| c.first().copied());
+    let powered = |k: usize| match (rail_column, rail_normal) {
+        (Some(c), Some(normal)) => c[k] >= 0.8 * normal,
+        _ => true,
+    };
+    let comparator_toggles: Vec<(String, usize)> = comparators
+        .iter()
+        .map(|(name, node)| {
+            let column = trace.column(&Probe::Voltage { node: *node }).unwrap_or(&[]);
+            (
+                name.clone(),
+                toggles(&trace.time, column, onset_s, 1.0, &powered),
+            )
+        })
+        .collect();
+    let toggle_counts: Vec<usize> = comparator_toggles.iter().map(|(_, n)| *n).collect();
+    let window = Window {
+        onset_s,
+        event_end_s,
+        run_end_s,
+        disturbances: envelope.windows.len(),
+        relay_part: relay.unwrap_or(usize::MAX),
+        closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
+    };
+    let measurements = measure(&trace.events, &window, &toggle_counts);
+    let min_rail_v = rail.and_then(|node| {
+        let column = trace.column(&Probe::Voltage { node })?;
+        minimum_after(&trace.time, column, onset_s)
+    });
+    Ok(EventRun {
+        event: profile.spec(),
+        nominal_rms_v: rms,
+        frequency_hz,
+        settled_at_s,
+        settled,
+        onset_s,
+        event_end_s,
+        run_end_s,
+        settled_after,
+        measurements,
+        min_rail_v,
+        rail: rail.map(|n| circuit.nodes[n].clone()),
+        comparator_toggles,
+        stats: state.stats,
+        trace,
+        envelope,
+    })
+}
