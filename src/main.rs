@@ -53,7 +53,7 @@ enum Command {
     },
     /// Simulate a circuit: a power-up, or with --event a supply disturbance and the
     /// protector's measured response.
-    Run(RunArgs),
+    Run(Box<RunArgs>),
     /// List the built-in IEC 61000-4-11 test profiles usable with --event.
     Profiles,
 }
