@@ -1,0 +1,238 @@
+//! Event profiles against IEC 61000-4-11, and one-event runs of the reference guard against
+//! hand estimates.
+
+mod common;
+
+use common::circuit;
+use sagtrip::profile::{iec_presets, parse_spec, resolve, Duration, Step, DEFAULT_EDGE_S};
+use sagtrip::scenario::{run_event, EventOptions};
+use sagtrip::waveform::Waveform;
+
+#[test]
+fn presets_are_the_preferred_test_levels_of_the_standard() {
+    // IEC 61000-4-11:2020 Table 1 (dips), class 2: 0% 1/2 cycle, 0% 1 cycle, 70% 25/30
+    // cycles; class 3 adds 40% 10/12 cycles and 80% 250/300 cycles. Table 2 (short
+    // interruptions): 0% 250/300 cycles for both classes. Table 3 (voltage variation, from
+    // memory): down to 70% abruptly, 1 cycle at 70%, back over 25/30 cycles.
+    let expected: &[(&str, f64, f64, f64)] = &[
+        ("class2-dip-0-half", 0.0, 0.5, 0.5),
+        ("class2-dip-0-1cyc", 0.0, 1.0, 1.0),
+        ("class2-dip-70", 0.7, 25.0, 30.0),
+        ("class2-interrupt", 0.0, 250.0, 300.0),
+        ("class3-dip-0-half", 0.0, 0.5, 0.5),
+        ("class3-dip-0-1cyc", 0.0, 1.0, 1.0),
+        ("class3-dip-40", 0.4, 10.0, 12.0),
+        ("class3-dip-70", 0.7, 25.0, 30.0),
+        ("class3-dip-80", 0.8, 250.0, 300.0),
+        ("class3-interrupt", 0.0, 250.0, 300.0),
+    ];
+    let presets = iec_presets();
+    for &(name, residual, c50, c60) in expected {
+        let p = presets
+            .iter()
+            .find(|p| p.name == name)
+            .unwrap_or_else(|| panic!("{name}"));
+        assert_eq!(
+            p.profile_50hz.steps,
+            [Step::Dip {
+                residual,
+                duration: Duration::Cycles(c50)
+            }],
+            "{name}"
+        );
+        assert_eq!(
+            p.profile_60hz.steps,
+            [Step::Dip {
+                residual,
+                duration: Duration::Cycles(c60)
+            }],
+            "{name}"
+        );
+        // 50/60 Hz pairs last the same time (check-values, derived).
+        assert!(
+            (Duration::Cycles(c50).seconds(50.0) - Duration::Cycles(c60).seconds(60.0)).abs()
+                < 1e-12
+                || c50 == c60
+        );
+    }
+    for class in [2, 3] {
+        let vary = presets
+            .iter()
+            .find(|p| p.name == format!("class{class}-vary-70"))
+            .unwrap();
+        assert_eq!(
+            vary.profile_50hz.steps,
+            [Step::Variation {
+                residual: 0.7,
+                decrease: Duration::Cycles(0.0),
+                hold: Duration::Cycles(1.0),
+                increase: Duration::Cycles(25.0)
+            }]
+        );
+    }
+    // Class 2 has no 40% or 80% dips.
+    assert!(presets
+        .iter()
+        .all(|p| p.name != "class2-dip-40" && p.name != "class2-dip-80"));
+    // Presets follow the supply frequency.
+    let p = resolve("class3-dip-40@45", 60.0, DEFAULT_EDGE_S).unwrap();
+    assert_eq!(
+        p.steps,
+        [Step::Dip {
+            residual: 0.4,
+            duration: Duration::Cycles(12.0)
+        }]
+    );
+    assert_eq!(p.phase_deg, 45.0);
+}
+
+fn disturbed(spec: &str, onset: f64) -> (Waveform, f64) {
+    let profile = parse_spec(spec, DEFAULT_EDGE_S).unwrap();
+    let envelope = profile.envelope(50.0);
+    let onset = onset + profile.phase_deg / 360.0 / 50.0;
+    (
+        Waveform::Disturbed {
+            amplitude: 230.0 * std::f64::consts::SQRT_2,
+            frequency_hz: 50.0,
+            phase_deg: 0.0,
+            onset_s: onset,
+            envelope,
+        },
+        onset,
+    )
+}
+
+/// RMS over one cycle starting at `start`, by fine sampling.
+fn cycle_rms(w: &Waveform, start: f64) -> f64 {
+    let n = 20_000;
+    let sum: f64 = (0..n)
+        .map(|k| {
+            let v = w.value(start + (k as f64 + 0.5) / n as f64 * 0.02);
+            v * v
+        })
+        .sum();
+    (sum / n as f64).sqrt()
+}
+
+#[test]
+fn a_generated_dip_has_the_residual_rms_and_starts_at_the_angle() {
+    for (spec, residual, angle) in [
+        ("dip:40%:10cyc@90", 0.4, 90.0),
+        ("dip:70%:25cyc@45", 0.7, 45.0),
+    ] {
+        let (w, onset) = disturbed(spec, 1.0);
+        // One-cycle RMS inside the dip is the residual level (IEC 61000-4-11: levels are
+        // residual voltage in % of U_T).
+        let rms = cycle_rms(&w, onset + 0.04);
+        assert!(
+            (rms - residual * 230.0).abs() < 1e-3 * 230.0,
+            "{spec}: {rms}"
+        );
+        // Before the dip, nominal.
+        assert!((cycle_rms(&w, 0.5) - 230.0).abs() < 0.01);
+        // The change starts at the requested phase angle of the mains sine.
+        let phase = (onset * 50.0).fract() * 360.0;
+        assert!((phase - angle).abs() < 1e-6, "{phase}");
+        // Edge: the level goes from nominal to the residual over the edge time.
+        let amplitude = 230.0 * std::f64::consts::SQRT_2;
+        let sin = (2.0 * std::f64::consts::PI * 50.0 * onset).sin();
+        let level =
+            |t: f64| w.value(t) / (amplitude * (2.0 * std::f64::consts::PI * 50.0 * t).sin());
+        if sin.abs() > 0.5 {
+            assert!((level(onset) - 1.0).abs() < 1e-3);
+            assert!((level(onset + DEFAULT_EDGE_S) - residual).abs() < 1e-3);
+            assert!((level(onset + 0.5 * DEFAULT_EDGE_S) - 0.5 * (1.0 + residual)).abs() < 1e-2);
+        }
+        // Breakpoints at the corners of the envelope.
+        assert!((w.next_breakpoint(onset - 1e-3) - onset).abs() < 1e-12);
+    }
+}
+
+#[test]
+fn an_interruption_trips_the_guard_as_the_sense_capacitor_discharge_predicts() {
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let profile = parse_spec("interrupt:10cyc", DEFAULT_EDGE_S).unwrap();
+    let options = EventOptions {
+        probes: vec![
+            sagtrip::probe::Probe::parse("sense", &guard).unwrap(),
+            sagtrip::probe::Probe::parse("ref_lo", &guard).unwrap(),
+        ],
+        ..EventOptions::default()
+    };
+    let run = run_event(&guard, &profile, &options).unwrap();
+    let m = &run.measurements;
+    assert!(m.tripped);
+    // Hand estimate (reference-guard.md): during the interruption d_sense blocks and c_sense
+    // discharges through r_top + r_bot, tau = 83 kohm x 4.7 uF = 0.39 s, so `sense` falls
+    // from its value at onset to ref_lo after t = tau ln(V_sense / V_ref_lo) (RC discharge,
+    // Hayt, Kemmerly and Durbin). The comparator then turns q_drive off; the coil current
+    // (30 mA at 12 V / 400 ohm) decays with L/R = 0.625 ms through the flyback diode to the
+    // 4 mA drop-out: about (L/R) ln(30/4) = 1.26 ms (the diode's drop makes it a little
+    // faster); then the 3 ms open travel.
+    let t = &run.trace.time;
+    let k = t.partition_point(|&x| x < run.onset_s);
+    let sense = sagtrip::probe::Probe::parse("sense", &guard).unwrap();
+    let ref_lo = sagtrip::probe::Probe::parse("ref_lo", &guard).unwrap();
+    let v_sense = run.trace.column(&sense).unwrap()[k];
+    let v_ref = run.trace.column(&ref_lo).unwrap()[k];
+    let tau = 83e3 * 4.7e-6;
+    let estimate = tau * (v_sense / v_ref).ln() + 0.625e-3 * (30.0f64 / 4.0).ln() + 3e-3;
+    let latency = m.trip_latency_ms.unwrap() * 1e-3;
+    assert!(
+        (latency / estimate - 1.0).abs() < 0.10,
+        "trip latency {latency} s, hand estimate {estimate} s"
+    );
+    // It reconnects after the delay (about 0.6 s after the supply is back, reference-guard.md).
+    let restore = m.restore_latency_ms.unwrap() * 1e-3;
+    assert!(restore > 0.4 && restore < 1.0, "{restore}");
+    assert!(!m.chatter);
+    assert_eq!(m.relay_transitions, 2);
+    assert!(run.settled_after);
+    // The open travel and the bounce are the relay's: 3 ms, 6 ms, 1.5 ms.
+    assert!((m.release_time_ms.unwrap() - 3.0).abs() < 1e-6);
+    assert!((m.operate_time_ms.unwrap() - 6.0).abs() < 1e-6);
+    assert!((m.bounce_ms.unwrap() - 1.5).abs() < 1e-6);
+}
+
+#[test]
+fn a_half_cycle_interruption_is_ridden_through() {
+    // "dips of a cycle or less ride through" (reference-guard.md).
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let profile = resolve("class3-dip-0-half", 50.0, DEFAULT_EDGE_S).unwrap();
+    let run = run_event(&guard, &profile, &EventOptions::default()).unwrap();
+    assert!(!run.measurements.tripped);
+    assert_eq!(run.measurements.load_interruption_ms, 0.0);
+    assert_eq!(run.measurements.trip_latency_ms, None);
+}
+
+#[test]
+fn a_slow_ramp_makes_the_guard_chatter_and_the_hysteresis_variant_not() {
+    // Down through the under-voltage threshold (near 200 V) in 3 s; only the start of the
+    // held low level is needed.
+    let profile = parse_spec("ramp:100%-84%:3s", DEFAULT_EDGE_S).unwrap();
+    let options = EventOptions {
+        restore_limit_s: 0.5,
+        ..EventOptions::default()
+    };
+    let plain = run_event(
+        &circuit(sagtrip::builtin::REFERENCE_GUARD),
+        &profile,
+        &options,
+    )
+    .unwrap();
+    assert!(plain.measurements.tripped);
+    assert!(plain.measurements.chatter, "{:?}", plain.comparator_toggles);
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/guard-230v-hysteresis.toml"
+    ))
+    .unwrap();
+    let fixed = run_event(&circuit(&text), &profile, &options).unwrap();
+    assert!(fixed.measurements.tripped);
+    assert!(
+        !fixed.measurements.chatter,
+        "{:?}",
+        fixed.comparator_toggles
+    );
+    assert_eq!(fixed.measurements.relay_transitions, 1);
+}
