@@ -23,5 +23,6 @@ pub mod probe;
 pub mod profile;
 pub mod scenario;
 pub mod summary;
+pub mod synth;
 pub mod units;
 pub mod waveform;

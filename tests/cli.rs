@@ -199,3 +199,59 @@ fn check_without_a_circuit_lists_the_reference_guard() {
     // The unused normally-closed contact is not listed as a connection.
     assert!(!text.contains("normally_closed="));
 }
+
+#[test]
+fn profiles_lists_the_iec_tests_and_synth_writes_a_wav() {
+    let out = sagtrip(&["profiles"]);
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("class3-dip-40"));
+    assert!(text.contains("IEC 61000-4-11 Table 1"));
+    let wav = temp_path("dip.wav");
+    let out = sagtrip(&[
+        "synth",
+        "class3-dip-40@90",
+        "--out",
+        wav.to_str().unwrap(),
+        "--format",
+        "float32",
+        "--rate",
+        "8000",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("650.538 V per full scale"), "{text}");
+    let reader = hound::WavReader::open(&wav).unwrap();
+    assert_eq!(reader.spec().sample_rate, 8000);
+    assert_eq!(reader.spec().sample_format, hound::SampleFormat::Float);
+}
+
+#[test]
+fn a_malformed_event_is_refused_with_a_marker() {
+    let out = sagtrip(&["run", "--event", "dip:40%:10cycles"]);
+    assert!(!out.status.success());
+    let err = String::from_utf8(out.stderr).unwrap();
+    assert!(err.contains("found `10cycles`"), "{err}");
+    assert!(err.contains("        ^^^^^^^^"), "{err}");
+}
+
+#[test]
+fn run_event_json_has_the_promised_fields() {
+    let out = sagtrip(&["run", "--event", "interrupt:10cyc", "--json"]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["tripped"], true);
+    assert!(v["trip_latency_ms"].as_f64().unwrap() > 10.0);
+    assert!(v["restore_latency_ms"].as_f64().unwrap() > 100.0);
+    assert!(v["relay_transitions"].as_u64().unwrap() == 2);
+    assert_eq!(v["chatter"], false);
+    assert!(v["load_interruption_ms"].as_f64().unwrap() > 100.0);
+    assert!(v["min_rail_v"].as_f64().is_some());
+}

@@ -236,3 +236,63 @@ fn a_slow_ramp_makes_the_guard_chatter_and_the_hysteresis_variant_not() {
     );
     assert_eq!(fixed.measurements.relay_transitions, 1);
 }
+
+#[test]
+fn synthesised_wav_files_hold_the_profile_at_the_stated_scale() {
+    use sagtrip::synth::{samples, wav_bytes, SampleFormat, SynthOptions};
+    let profile = parse_spec("dip:40%:10cyc", DEFAULT_EDGE_S).unwrap();
+    for (format, resolution) in [
+        (SampleFormat::Int16, 1.0 / 32767.0),
+        (SampleFormat::Int24, 1.0 / 8_388_607.0),
+        (SampleFormat::Float32, 1e-7),
+    ] {
+        let options = SynthOptions {
+            rms_v: 230.0,
+            frequency_hz: 50.0,
+            sample_rate: 20_000,
+            lead_s: 0.2,
+            tail_s: 0.2,
+            volts_per_full_scale: 650.0,
+            format,
+        };
+        let volts = samples(&profile, &options);
+        let bytes = wav_bytes(&volts, &options).unwrap();
+        let mut reader = hound::WavReader::new(std::io::Cursor::new(bytes)).unwrap();
+        let spec = reader.spec();
+        assert_eq!(spec.sample_rate, 20_000);
+        assert_eq!(spec.channels, 1);
+        let read: Vec<f64> = match format {
+            SampleFormat::Int16 => reader
+                .samples::<i16>()
+                .map(|s| f64::from(s.unwrap()) / 32767.0 * 650.0)
+                .collect(),
+            SampleFormat::Int24 => reader
+                .samples::<i32>()
+                .map(|s| f64::from(s.unwrap()) / 8_388_607.0 * 650.0)
+                .collect(),
+            SampleFormat::Float32 => reader
+                .samples::<f32>()
+                .map(|s| f64::from(s.unwrap()) * 650.0)
+                .collect(),
+        };
+        assert_eq!(read.len(), volts.len());
+        for (a, b) in read.iter().zip(&volts) {
+            assert!((a - b).abs() <= 650.0 * resolution, "{a} vs {b}");
+        }
+        // One-cycle RMS inside the dip (0.26 .. 0.28 s): 40% of 230 V.
+        let cycle: Vec<f64> = read[5200..5600].to_vec();
+        let rms = (cycle.iter().map(|v| v * v).sum::<f64>() / cycle.len() as f64).sqrt();
+        assert!((rms - 92.0).abs() < 0.1, "{rms}");
+    }
+    // Beyond full scale is refused, not clipped.
+    let options = SynthOptions {
+        rms_v: 230.0,
+        frequency_hz: 50.0,
+        sample_rate: 10_000,
+        lead_s: 0.1,
+        tail_s: 0.1,
+        volts_per_full_scale: 300.0,
+        format: SampleFormat::Int16,
+    };
+    assert!(wav_bytes(&samples(&profile, &options), &options).is_err());
+}
