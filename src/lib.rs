@@ -19,6 +19,7 @@ pub mod devices;
 pub mod engine;
 pub mod measure;
 pub mod output;
+pub mod plot;
 pub mod probe;
 pub mod profile;
 pub mod scenario;

@@ -154,6 +154,9 @@ struct RunArgs {
     /// Rise and fall time of abrupt changes (default 5us).
     #[arg(long)]
     edge: Option<String>,
+    /// With --event: draw the run as stacked panels into FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -642,6 +645,26 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
         .iter()
         .map(|p| Probe::parse(p, &circuit).map_err(|e| format!("--probe {p}: {e}")))
         .collect::<Result<Vec<_>, _>>()?;
+    if args.plot.is_some() {
+        for p in sagtrip::plot::plot_probes(&circuit) {
+            if !options.probes.contains(&p) {
+                options.probes.push(p);
+            }
+        }
+    }
+    let plot_kind = match &args.plot {
+        None => None,
+        Some(path) => match path.extension().and_then(|e| e.to_str()) {
+            Some("svg") => Some(false),
+            Some("png") => Some(true),
+            _ => {
+                return Err(format!(
+                    "--plot {}: the file name must end in .svg or .png",
+                    path.display()
+                ))
+            }
+        },
+    };
     let mains =
         find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
     let frequency = options.nominal.map_or(mains.frequency_hz, |n| n.1);
@@ -654,6 +677,22 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
     if let Some(path) = &args.trace {
         write_atomic(path, |w| result.trace.write_csv(&circuit, w))
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
+    }
+    if let (Some(path), Some(png)) = (&args.plot, plot_kind) {
+        if png {
+            // Drawn to a temporary file beside the target, then renamed: never half a PNG.
+            let temp = path.with_extension("png.partial.png");
+            sagtrip::plot::event_png(&result, &circuit, &name, &temp)
+                .and_then(|()| std::fs::rename(&temp, path).map_err(|e| e.to_string()))
+                .map_err(|e| {
+                    let _ = std::fs::remove_file(&temp);
+                    format!("cannot write plot {}: {e}", path.display())
+                })?;
+        } else {
+            let svg = sagtrip::plot::event_svg(&result, &circuit, &name)?;
+            write_atomic(path, |w| w.write_all(svg.as_bytes()))
+                .map_err(|e| format!("cannot write plot {}: {e}", path.display()))?;
+        }
     }
     let m = &result.measurements;
     if args.json {
@@ -675,6 +714,8 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
                 "comparator_toggles": result.comparator_toggles,
                 "stats": result.stats,
                 "wall_time_s": wall,
+                "trace": args.trace.as_ref().map(|p| p.display().to_string()),
+                "plot": args.plot.as_ref().map(|p| p.display().to_string()),
             });
             if let serde_json::Value::Object(extra) = extra {
                 map.extend(extra);
@@ -755,6 +796,9 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
             result.trace.time.len(),
             path.display()
         );
+    }
+    if let Some(path) = &args.plot {
+        say!(out, "plot: {}", path.display());
     }
     Ok(out)
 }

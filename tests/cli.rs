@@ -255,3 +255,40 @@ fn run_event_json_has_the_promised_fields() {
     assert!(v["load_interruption_ms"].as_f64().unwrap() > 100.0);
     assert!(v["min_rail_v"].as_f64().is_some());
 }
+
+#[test]
+fn event_plots_are_written_as_svg_and_png() {
+    let svg = temp_path("dip.svg");
+    let png = temp_path("dip.png");
+    for path in [&svg, &png] {
+        let out = sagtrip(&[
+            "run",
+            "--event",
+            "dip:40%:10cyc@90",
+            "--plot",
+            path.to_str().unwrap(),
+        ]);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    let text = std::fs::read_to_string(&svg).unwrap();
+    for label in [
+        "supply",
+        "comparator inputs",
+        "relay coil current",
+        "load path",
+        "trip ",
+        "time since onset (ms)",
+    ] {
+        assert!(text.contains(label), "{label}");
+    }
+    let bytes = std::fs::read(&png).unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
+    assert!(bytes.len() > 50_000);
+    // A plot name without .svg or .png is refused before any work.
+    let out = sagtrip(&["run", "--event", "interrupt:1cyc", "--plot", "x.pdf"]);
+    assert!(!out.status.success());
+}
