@@ -94,10 +94,18 @@ const COLORS: [RGBColor; 5] = [
     RGBColor(255, 127, 14),
 ];
 
+/// One panel: caption, unit of the y axis, lines, labelled horizontal levels.
+struct Panel {
+    caption: String,
+    unit: String,
+    lines: Vec<Line>,
+    levels: Vec<(f64, String)>,
+}
+
 /// Panels and annotations of a run.
 struct Figure {
     title: String,
-    panels: Vec<(String, String, Vec<Line>, Vec<(f64, String)>)>,
+    panels: Vec<Panel>,
     onset_ms: f64,
     end_ms: f64,
     x_range: (f64, f64),
@@ -114,15 +122,15 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
     // Supply.
     if let Some(mains) = t.probes.first() {
         if let Some(points) = series(mains) {
-            panels.push((
-                "supply".to_string(),
-                "V".to_string(),
-                vec![Line {
+            panels.push(Panel {
+                caption: "supply".into(),
+                unit: "V".into(),
+                lines: vec![Line {
                     label: mains.label(circuit),
                     points,
                 }],
-                Vec::new(),
-            ));
+                levels: Vec::new(),
+            });
         }
     }
     // Comparator inputs and outputs.
@@ -155,10 +163,20 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
         }
     }
     if !inputs.is_empty() {
-        panels.push(("comparator inputs".into(), "V".into(), inputs, Vec::new()));
+        panels.push(Panel {
+            caption: "comparator inputs".into(),
+            unit: "V".into(),
+            lines: inputs,
+            levels: Vec::new(),
+        });
     }
     if !outputs.is_empty() {
-        panels.push(("comparator outputs".into(), "V".into(), outputs, Vec::new()));
+        panels.push(Panel {
+            caption: "comparator outputs".into(),
+            unit: "V".into(),
+            lines: outputs,
+            levels: Vec::new(),
+        });
     }
     // Relays: coil current with pick-up and drop-out levels; load path.
     let mut marks = Vec::new();
@@ -171,18 +189,18 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
                 .into_iter()
                 .map(|(x, y)| (x, y.abs() * 1e3))
                 .collect();
-            panels.push((
-                format!("{} coil current", part.name),
-                "mA".into(),
-                vec![Line {
+            panels.push(Panel {
+                caption: format!("{} coil current", part.name),
+                unit: "mA".into(),
+                lines: vec![Line {
                     label: "coil".into(),
                     points,
                 }],
-                vec![
+                levels: vec![
                     (r.pickup_current * 1e3, "pick-up".into()),
                     (r.dropout_current * 1e3, "drop-out".into()),
                 ],
-            ));
+            });
         }
         // Contact state from the located events.
         let mut closed =
@@ -214,7 +232,12 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
                 points: points.into_iter().map(|(x, y)| (x, y / peak)).collect(),
             });
         }
-        panels.push(("load path".into(), "".into(), lines, Vec::new()));
+        panels.push(Panel {
+            caption: "load path".into(),
+            unit: String::new(),
+            lines,
+            levels: Vec::new(),
+        });
     }
     let m = &run.measurements;
     if let Some(trip) = m.trip_latency_ms {
