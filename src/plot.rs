@@ -270,8 +270,13 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
     let areas = root.split_evenly((figure.panels.len().max(1), 1));
     let (x0, x1) = figure.x_range;
     let last = figure.panels.len().saturating_sub(1);
-    for (k, ((caption, unit, lines, levels), area)) in figure.panels.iter().zip(&areas).enumerate()
-    {
+    for (k, (panel, area)) in figure.panels.iter().zip(&areas).enumerate() {
+        let Panel {
+            caption,
+            unit,
+            lines,
+            levels,
+        } = panel;
         let mut y0 = f64::INFINITY;
         let mut y1 = f64::NEG_INFINITY;
         for line in lines {
