@@ -136,8 +136,11 @@ struct RunArgs {
     /// dip:40%:10cyc@90, interrupt:250cyc, swell:120%:25cyc, vary:70%:0cyc/1cyc/25cyc,
     /// ramp:100%-65%:20s (items joined by `;`, with gap:DURATION between), or a preset name
     /// from `sagtrip profiles` such as class3-dip-40 (optionally @DEGREES).
-    #[arg(long)]
+    #[arg(long, conflicts_with = "event_file")]
     event: Option<String>,
+    /// Supply event from a TOML event file (a sequence; see docs/events.md).
+    #[arg(long)]
+    event_file: Option<PathBuf>,
     /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
     #[arg(long)]
     nominal: Option<String>,
@@ -172,7 +175,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Check { circuit } => check(circuit.as_deref()),
         Command::Run(args) => {
-            if args.event.is_some() {
+            if args.event.is_some() || args.event_file.is_some() {
                 run_event_command(&args)
             } else {
                 run(&args)
@@ -668,8 +671,23 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
     let mains =
         find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
     let frequency = options.nominal.map_or(mains.frequency_hz, |n| n.1);
-    let spec = args.event.as_deref().unwrap_or_default();
-    let profile = resolve(spec, frequency, edge).map_err(|e| format!("--event: {e}"))?;
+    let profile = match &args.event_file {
+        Some(path) => {
+            let text = std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read event file {}: {e}", path.display()))?;
+            let mut profile =
+                sagtrip::profile::parse_event_file(&text, &path.display().to_string())
+                    .map_err(|e| e.to_string())?;
+            if args.edge.is_some() {
+                profile.edge_s = edge;
+            }
+            profile
+        }
+        None => {
+            let spec = args.event.as_deref().unwrap_or_default();
+            resolve(spec, frequency, edge).map_err(|e| format!("--event: {e}"))?
+        }
+    };
 
     let started = Instant::now();
     let result = run_event(&circuit, &profile, &options).map_err(|e| format!("{name}: {e}"))?;

@@ -296,3 +296,39 @@ fn synthesised_wav_files_hold_the_profile_at_the_stated_scale() {
     };
     assert!(wav_bytes(&samples(&profile, &options), &options).is_err());
 }
+
+#[test]
+fn event_files_describe_sequences_and_errors_name_the_field() {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/events/recloser.toml"
+    ))
+    .unwrap();
+    let p = sagtrip::profile::parse_event_file(&text, "recloser.toml").unwrap();
+    assert_eq!(
+        p.spec(),
+        "interrupt:300ms;gap:500ms;interrupt:300ms;vary:92%:0cyc/2s/50cyc"
+    );
+    // Two interruptions 0.8 s apart (300 ms + 500 ms gap) then the low tail.
+    let e = p.envelope(50.0);
+    assert_eq!(e.windows.len(), 3);
+    assert_eq!(e.level(0.1), 0.0);
+    assert_eq!(e.level(0.5), 1.0);
+    assert_eq!(e.level(0.9), 0.0);
+    assert!((e.level(1.5) - 0.92).abs() < 1e-12);
+
+    let bad = "[[event]]\nkind = \"dip\"\nresidual = \"40%\"\nduration = \"10cycles\"\n";
+    let err = sagtrip::profile::parse_event_file(bad, "bad.toml").unwrap_err();
+    assert_eq!((err.line, err.column), (4, 12));
+    assert_eq!(err.field, "event.1.duration");
+    let bad = "[[event]]\nkind = \"sag\"\nduration = \"1cyc\"\n";
+    let err = sagtrip::profile::parse_event_file(bad, "bad.toml").unwrap_err();
+    assert!(
+        err.to_string()
+            .starts_with("bad.toml:2:8: event.1.kind: unknown event kind `sag`"),
+        "{err}"
+    );
+    let bad = "[[event]]\nkind = \"gap\"\nduration = \"1cyc\"\nlevel = \"5%\"\n";
+    let err = sagtrip::profile::parse_event_file(bad, "bad.toml").unwrap_err();
+    assert_eq!(err.field, "event.1.level");
+}
