@@ -14,41 +14,36 @@ fn load(name: &str) -> sagtrip::circuit::Circuit {
     parse_circuit(&text, &path).unwrap()
 }
 
-/// One simulated second of a 50 Hz bridge rectifier with capacitor and resistive load,
-/// started from rest.
-#[divan::bench(sample_count = 10)]
-fn bridge_rectifier_one_second(bencher: divan::Bencher) {
-    let circuit = load("bridge-rectifier.toml");
+/// Simulates one second of `circuit` from rest per iteration.
+fn one_second(bencher: divan::Bencher, circuit: &sagtrip::circuit::Circuit) {
     bencher.bench_local(|| {
-        let mut sim = Simulator::new(&circuit, Settings::default());
+        let mut sim = Simulator::new(circuit, Settings::default());
         let mut state = sim.start(Start::Rest).unwrap();
         sim.advance(&mut state, 1.0, &mut ()).unwrap();
         divan::black_box(state.stats.accepted_steps)
     });
+}
+
+/// One simulated second of a 50 Hz bridge rectifier with capacitor and resistive load,
+/// started from rest.
+#[divan::bench(sample_count = 10)]
+fn bridge_rectifier_one_second(bencher: divan::Bencher) {
+    one_second(bencher, &load("bridge-rectifier.toml"));
 }
 
 /// One simulated second of the transformer-fed supply (coupled windings, bridge, zener,
 /// LED), started from rest.
 #[divan::bench(sample_count = 10)]
 fn transformer_supply_one_second(bencher: divan::Bencher) {
-    let circuit = load("transformer-supply.toml");
-    bencher.bench_local(|| {
-        let mut sim = Simulator::new(&circuit, Settings::default());
-        let mut state = sim.start(Start::Rest).unwrap();
-        sim.advance(&mut state, 1.0, &mut ()).unwrap();
-        divan::black_box(state.stats.accepted_steps)
-    });
+    one_second(bencher, &load("transformer-supply.toml"));
 }
 
 /// One simulated second of the reference guard powering up from rest (relay picks up at
 /// about 0.71 s).
 #[divan::bench(sample_count = 10)]
 fn reference_guard_one_second(bencher: divan::Bencher) {
-    let circuit = parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
-    bencher.bench_local(|| {
-        let mut sim = Simulator::new(&circuit, Settings::default());
-        let mut state = sim.start(Start::Rest).unwrap();
-        sim.advance(&mut state, 1.0, &mut ()).unwrap();
-        divan::black_box(state.stats.accepted_steps)
-    });
+    one_second(
+        bencher,
+        &parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap(),
+    );
 }

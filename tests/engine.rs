@@ -154,20 +154,7 @@ pins = { anode = "gnd", cathode = "k" }
 #[test]
 fn operating_point_of_a_diode_string_converges() {
     // Ten diodes in series from 230 V peak through 100 ohm: hard for plain Newton from zero.
-    let mut text = String::from(
-        "[part.supply]\nkind = \"voltage-source\"\npins = [\"n0\", \"gnd\"]\ndc = 325\n\
-         [part.r1]\nkind = \"resistor\"\npins = [\"n0\", \"n1\"]\nresistance = 100\n",
-    );
-    for k in 1..=10 {
-        let next = if k == 10 {
-            "gnd".to_string()
-        } else {
-            format!("n{}", k + 1)
-        };
-        text += &format!(
-            "[part.d{k}]\nkind = \"diode\"\npins = [\"n{k}\", \"{next}\"]\nsaturation_current = \"1f\"\n"
-        );
-    }
+    let text = diode_string();
     let run = simulate(
         &text,
         Start::OperatingPoint,
@@ -331,6 +318,24 @@ fn sparse_lu_agrees_with_nalgebra_and_reuses_its_order() {
 fn gmin_and_source_stepping_rescue_a_hard_operating_point() {
     // With Newton capped at 4 iterations, plain Newton from zero cannot reach the operating
     // point of a diode string fed from 325 V; the stepping fallbacks must.
+    let text = diode_string();
+    let circuit = circuit(&text);
+    let capped = Settings {
+        max_operating_point_iterations: 4,
+        ..Settings::default()
+    };
+    let mut sim = Simulator::new(&circuit, capped);
+    let state = sim.start(Start::OperatingPoint).unwrap();
+    assert!(state.stats.stepping_solves > 0, "plain Newton was enough");
+    let i = (state.node_voltage(1) - state.node_voltage(2)) / 100.0;
+    // KVL: 325 = 100 I + 10 Vt ln(I/Is + 1).
+    let vt = sagtrip::circuit::THERMAL_VOLTAGE;
+    let residual = 325.0 - 100.0 * i - 10.0 * vt * (i / 1e-15 + 1.0).ln();
+    assert!(residual.abs() < 1e-2, "residual {residual} V");
+}
+
+/// Ten 1 fA diodes in series fed from 325 V through 100 ohm.
+fn diode_string() -> String {
     let mut text = String::from(
         "[part.supply]\nkind = \"voltage-source\"\npins = [\"n0\", \"gnd\"]\ndc = 325\n\
          [part.r1]\nkind = \"resistor\"\npins = [\"n0\", \"n1\"]\nresistance = 100\n",
@@ -345,17 +350,5 @@ fn gmin_and_source_stepping_rescue_a_hard_operating_point() {
             "[part.d{k}]\nkind = \"diode\"\npins = [\"n{k}\", \"{next}\"]\nsaturation_current = \"1f\"\n"
         );
     }
-    let circuit = circuit(&text);
-    let capped = Settings {
-        max_operating_point_iterations: 4,
-        ..Settings::default()
-    };
-    let mut sim = Simulator::new(&circuit, capped);
-    let state = sim.start(Start::OperatingPoint).unwrap();
-    assert!(state.stats.stepping_solves > 0, "plain Newton was enough");
-    let i = (state.node_voltage(1) - state.node_voltage(2)) / 100.0;
-    // KVL: 325 = 100 I + 10 Vt ln(I/Is + 1).
-    let vt = sagtrip::circuit::THERMAL_VOLTAGE;
-    let residual = 325.0 - 100.0 * i - 10.0 * vt * (i / 1e-15 + 1.0).ln();
-    assert!(residual.abs() < 1e-2, "residual {residual} V");
+    text
 }

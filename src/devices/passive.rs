@@ -101,6 +101,26 @@ pub(crate) struct Windings {
 }
 
 impl Windings {
+    /// A single winding (an inductor or a relay coil) between `a` and `b`.
+    pub(crate) fn single(
+        (a, b): (usize, usize),
+        branch: usize,
+        inductance: f64,
+        resistance: f64,
+        initial_current: f64,
+        hist: usize,
+    ) -> Self {
+        Windings {
+            count: 1,
+            pins: [(a, b), (0, 0)],
+            branch: [branch, 0],
+            inductance: [[inductance, 0.0], [0.0, 0.0]],
+            resistance: [resistance, 0.0],
+            initial_current: [initial_current, 0.0],
+            hist,
+        }
+    }
+
     pub(super) fn stamp(&self, m: &mut Mna<'_>, ctx: &SolveContext, hist: &[f64]) {
         let scale = match ctx.method {
             Method::OperatingPoint => 0.0,

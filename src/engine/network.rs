@@ -113,15 +113,14 @@ impl Network {
                     );
                     push(
                         &mut devices,
-                        Device::Windings(Windings {
-                            count: 1,
-                            pins: [(pins[0], pins[1]), (0, 0)],
-                            branch: [branch, 0],
-                            inductance: [[*inductance, 0.0], [0.0, 0.0]],
-                            resistance: [*series_resistance, 0.0],
-                            initial_current: [initial_current.unwrap_or(0.0), 0.0],
-                            hist: history_len,
-                        }),
+                        Device::Windings(Windings::single(
+                            (pins[0], pins[1]),
+                            branch,
+                            *inductance,
+                            *series_resistance,
+                            initial_current.unwrap_or(0.0),
+                            history_len,
+                        )),
                         1.0,
                     );
                     history_len += 3;
@@ -335,15 +334,14 @@ impl Network {
                     );
                     push(
                         &mut devices,
-                        Device::Windings(Windings {
-                            count: 1,
-                            pins: [(pins[0], pins[1]), (0, 0)],
-                            branch: [coil_branch, 0],
-                            inductance: [[r.coil_inductance, 0.0], [0.0, 0.0]],
-                            resistance: [r.coil_resistance, 0.0],
-                            initial_current: [0.0; 2],
-                            hist: history_len,
-                        }),
+                        Device::Windings(Windings::single(
+                            (pins[0], pins[1]),
+                            coil_branch,
+                            r.coil_inductance,
+                            r.coil_resistance,
+                            0.0,
+                            history_len,
+                        )),
                         1.0,
                     );
                     history_len += 3;
