@@ -309,161 +309,223 @@ fn relay_state(
     })
 }
 
+/// A protector powered up and settled on its nominal supply, ready to take events. Each
+/// event runs on copies of the settled simulator and state, so one power-up serves any
+/// number of events (sweeps run them in parallel).
+#[derive(Clone, Debug)]
+pub struct Settled {
+    sim: Simulator,
+    state: SimState,
+    mains: Mains,
+    /// Nominal RMS voltage, volts.
+    pub rms: f64,
+    /// Nominal frequency, hertz.
+    pub frequency_hz: f64,
+    relay: Option<usize>,
+    rail: Option<usize>,
+    pre_event_relay: Option<crate::devices::RelayState>,
+    comparators: Vec<(String, usize)>,
+    /// When the power-up was judged settled (a rising zero crossing), seconds.
+    pub settled_at_s: f64,
+    /// Whether it settled within the limit.
+    pub settled: bool,
+    options: EventOptions,
+}
+
+/// Powers `circuit` up on its nominal supply until it has settled.
+pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, ScenarioError> {
+    let mains = find_mains(circuit, options.mains.as_deref())?;
+    let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
+    let relay = find_relay(circuit, options.relay.as_deref())?;
+    let rail = find_rail(circuit, options.rail.as_deref())?;
+    let period = 1.0 / frequency_hz;
+    let steady = Waveform::Sine {
+        amplitude: rms * std::f64::consts::SQRT_2,
+        frequency_hz,
+        phase_deg: mains.phase_deg,
+        offset: 0.0,
+    };
+    let mut sim = Simulator::new(circuit, options.settings.clone());
+    sim.set_source_waveform(mains.part, steady)?;
+    let mut state = sim.start(Start::Rest)?;
+    let offset = boundary_offset(&mains, period);
+    let settled = run_until_settled(
+        &mut sim,
+        &mut state,
+        period,
+        next_boundary(offset, period, period),
+        options,
+        options.settle_limit_s,
+        &mut None,
+        &|_, _| true,
+    )?;
+    let pre_event_relay = relay.and_then(|r| relay_state(&sim, &state, r));
+    let comparators = circuit
+        .parts
+        .iter()
+        .filter(|p| matches!(p.spec, PartSpec::Comparator(_)))
+        .map(|p| (p.name.clone(), p.pins[2]))
+        .collect();
+    Ok(Settled {
+        settled_at_s: state.time,
+        sim,
+        state,
+        mains,
+        rms,
+        frequency_hz,
+        relay,
+        rail,
+        pre_event_relay,
+        comparators,
+        settled,
+        options: options.clone(),
+    })
+}
+
+/// Time of the source's rising zero crossing nearest after 0 (2 pi f t + phase = 2 pi k).
+fn boundary_offset(mains: &Mains, period: f64) -> f64 {
+    -mains.phase_deg / 360.0 * period
+}
+
+/// The first rising zero crossing at or after `t`.
+fn next_boundary(offset: f64, period: f64, t: f64) -> f64 {
+    let k = ((t - offset) / period - 1e-9).ceil();
+    offset + k * period
+}
+
 /// Powers `circuit` up, applies `profile` and measures the response.
 pub fn run_event(
     circuit: &Circuit,
     profile: &Profile,
     options: &EventOptions,
 ) -> Result<EventRun, ScenarioError> {
-    let mains = find_mains(circuit, options.mains.as_deref())?;
-    let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
-    let relay = find_relay(circuit, options.relay.as_deref())?;
-    let rail = find_rail(circuit, options.rail.as_deref())?;
-    let period = 1.0 / frequency_hz;
-    let amplitude = rms * std::f64::consts::SQRT_2;
-    let steady = Waveform::Sine {
-        amplitude,
-        frequency_hz,
-        phase_deg: mains.phase_deg,
-        offset: 0.0,
-    };
+    settle(circuit, options)?.run(circuit, profile)
+}
 
-    let mut sim = Simulator::new(circuit, options.settings.clone());
-    sim.set_source_waveform(mains.part, steady)?;
-    let mut state = sim.start(Start::Rest)?;
-    // Rising zero crossings of the source: 2 pi f t + phase = 2 pi k.
-    let boundary_offset = -mains.phase_deg / 360.0 * period;
-    let boundary_after = |t: f64| {
-        let k = ((t - boundary_offset) / period - 1e-9).ceil();
-        boundary_offset + k * period
-    };
-
-    // Power-up: settled with the relay in a steady state.
-    let first = boundary_after(period);
-    let settled = run_until_settled(
-        &mut sim,
-        &mut state,
-        period,
-        first,
-        options,
-        options.settle_limit_s,
-        &mut None,
-        &|_, _| true,
-    )?;
-    let settled_at_s = state.time;
-    let pre_event_relay = relay.and_then(|r| relay_state(&sim, &state, r));
-
-    // The event: onset `pre_cycles` after the settled boundary, plus the phase angle.
-    let onset_s = boundary_after(state.time + 1e-9)
-        + options.pre_cycles as f64 * period
-        + profile.phase_deg.rem_euclid(360.0) / 360.0 * period;
-    let envelope = profile.envelope(frequency_hz);
-    let event_end_s = onset_s + envelope.end_s;
-    sim.set_source_waveform(
-        mains.part,
-        Waveform::Disturbed {
-            amplitude,
-            frequency_hz,
-            phase_deg: mains.phase_deg,
-            onset_s,
-            envelope: envelope.clone(),
-        },
-    )?;
-
-    let mut probes = vec![Probe::Voltage {
-        node: circuit.parts[mains.part].pins[0],
-    }];
-    if let Some(node) = rail {
-        probes.push(Probe::Voltage { node });
+impl Settled {
+    /// Whether the load relay's contact is closed in the settled state.
+    pub fn load_connected(&self) -> bool {
+        self.pre_event_relay.is_some_and(|r| r.normally_open_closed)
     }
-    let comparators: Vec<(String, usize)> = circuit
-        .parts
-        .iter()
-        .filter(|p| matches!(p.spec, PartSpec::Comparator(_)))
-        .map(|p| (p.name.clone(), p.pins[2]))
-        .collect();
-    for (_, node) in &comparators {
-        probes.push(Probe::Voltage { node: *node });
-    }
-    for p in &options.probes {
-        if !probes.contains(p) {
-            probes.push(p.clone());
+
+    /// Applies `profile` to a copy of the settled protector and measures the response.
+    pub fn run(&self, circuit: &Circuit, profile: &Profile) -> Result<EventRun, ScenarioError> {
+        let options = &self.options;
+        let mut sim = self.sim.clone();
+        let mut state = self.state.clone();
+        let (rms, frequency_hz) = (self.rms, self.frequency_hz);
+        let period = 1.0 / frequency_hz;
+        let amplitude = rms * std::f64::consts::SQRT_2;
+        let offset = boundary_offset(&self.mains, period);
+        let (relay, rail, pre_event_relay) = (self.relay, self.rail, self.pre_event_relay);
+        let settled_at_s = self.settled_at_s;
+
+        // The event: onset `pre_cycles` after the settled boundary, plus the phase angle.
+        let onset_s = next_boundary(offset, period, state.time + 1e-9)
+            + options.pre_cycles as f64 * period
+            + profile.phase_deg.rem_euclid(360.0) / 360.0 * period;
+        let envelope = profile.envelope(frequency_hz);
+        let event_end_s = onset_s + envelope.end_s;
+        sim.set_source_waveform(
+            self.mains.part,
+            Waveform::Disturbed {
+                amplitude,
+                frequency_hz,
+                phase_deg: self.mains.phase_deg,
+                onset_s,
+                envelope: envelope.clone(),
+            },
+        )?;
+
+        let mut probes = vec![Probe::Voltage {
+            node: circuit.parts[self.mains.part].pins[0],
+        }];
+        if let Some(node) = rail {
+            probes.push(Probe::Voltage { node });
         }
-    }
-    let mut trace = Trace::new(probes);
-    trace.record(sim.network(), &state);
-    {
-        let mut watch = Watch {
-            events: 0,
-            trace: Some(&mut trace),
+        for (_, node) in &self.comparators {
+            probes.push(Probe::Voltage { node: *node });
+        }
+        for p in &options.probes {
+            if !probes.contains(p) {
+                probes.push(p.clone());
+            }
+        }
+        let mut trace = Trace::new(probes);
+        trace.record(sim.network(), &state);
+        {
+            let mut watch = Watch {
+                events: 0,
+                trace: Some(&mut trace),
+            };
+            sim.advance(&mut state, event_end_s, &mut watch)?;
+        }
+        // After the event: until the relay is back as it was and all is quiet and periodic.
+        let back = |sim: &Simulator, s: &SimState| match (relay, pre_event_relay) {
+            (Some(r), Some(before)) => relay_state(sim, s, r) == Some(before),
+            _ => true,
         };
-        sim.advance(&mut state, event_end_s, &mut watch)?;
-    }
-    // After the event: until the relay is back as it was and all is quiet and periodic.
-    let back = |sim: &Simulator, s: &SimState| match (relay, pre_event_relay) {
-        (Some(r), Some(before)) => relay_state(sim, s, r) == Some(before),
-        _ => true,
-    };
-    let settled_after = run_until_settled(
-        &mut sim,
-        &mut state,
-        period,
-        boundary_after(event_end_s + 1e-9),
-        options,
-        event_end_s + options.restore_limit_s,
-        &mut Some(&mut trace),
-        &back,
-    )?;
-    let run_end_s = state.time;
-
-    // Comparator decisions count only while the logic rail is above 80% of its value at
-    // the start of the recording (a collapsing supply drags outputs without deciding).
-    let rail_column = rail.and_then(|node| trace.column(&Probe::Voltage { node }));
-    let rail_normal = rail_column.and_then(|c| c.first().copied());
-    let powered = |k: usize| match (rail_column, rail_normal) {
-        (Some(c), Some(normal)) => c[k] >= 0.8 * normal,
-        _ => true,
-    };
-    let comparator_toggles: Vec<(String, usize)> = comparators
-        .iter()
-        .map(|(name, node)| {
-            let column = trace.column(&Probe::Voltage { node: *node }).unwrap_or(&[]);
-            (
-                name.clone(),
-                toggles(&trace.time, column, onset_s, 1.0, &powered),
-            )
+        let settled_after = run_until_settled(
+            &mut sim,
+            &mut state,
+            period,
+            next_boundary(offset, period, event_end_s + 1e-9),
+            options,
+            event_end_s + options.restore_limit_s,
+            &mut Some(&mut trace),
+            &back,
+        )?;
+        let run_end_s = state.time;
+        // Comparator decisions count only while the logic rail is above 80% of its value at
+        // the start of the recording (a collapsing supply drags outputs without deciding).
+        let rail_column = rail.and_then(|node| trace.column(&Probe::Voltage { node }));
+        let rail_normal = rail_column.and_then(|c| c.first().copied());
+        let powered = |k: usize| match (rail_column, rail_normal) {
+            (Some(c), Some(normal)) => c[k] >= 0.8 * normal,
+            _ => true,
+        };
+        let comparator_toggles: Vec<(String, usize)> = self
+            .comparators
+            .iter()
+            .map(|(name, node)| {
+                let column = trace.column(&Probe::Voltage { node: *node }).unwrap_or(&[]);
+                (
+                    name.clone(),
+                    toggles(&trace.time, column, onset_s, 1.0, &powered),
+                )
+            })
+            .collect();
+        let toggle_counts: Vec<usize> = comparator_toggles.iter().map(|(_, n)| *n).collect();
+        let window = Window {
+            onset_s,
+            event_end_s,
+            run_end_s,
+            disturbances: envelope.windows.len(),
+            relay_part: relay.unwrap_or(usize::MAX),
+            closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
+        };
+        let measurements = measure(&trace.events, &window, &toggle_counts);
+        let min_rail_v = rail.and_then(|node| {
+            let column = trace.column(&Probe::Voltage { node })?;
+            minimum_after(&trace.time, column, onset_s)
+        });
+        Ok(EventRun {
+            event: profile.spec(),
+            nominal_rms_v: rms,
+            frequency_hz,
+            settled_at_s,
+            settled: self.settled,
+            onset_s,
+            event_end_s,
+            run_end_s,
+            settled_after,
+            measurements,
+            min_rail_v,
+            rail: rail.map(|n| circuit.nodes[n].clone()),
+            comparator_toggles,
+            stats: state.stats,
+            trace,
+            envelope,
         })
-        .collect();
-    let toggle_counts: Vec<usize> = comparator_toggles.iter().map(|(_, n)| *n).collect();
-    let window = Window {
-        onset_s,
-        event_end_s,
-        run_end_s,
-        disturbances: envelope.windows.len(),
-        relay_part: relay.unwrap_or(usize::MAX),
-        closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
-    };
-    let measurements = measure(&trace.events, &window, &toggle_counts);
-    let min_rail_v = rail.and_then(|node| {
-        let column = trace.column(&Probe::Voltage { node })?;
-        minimum_after(&trace.time, column, onset_s)
-    });
-    Ok(EventRun {
-        event: profile.spec(),
-        nominal_rms_v: rms,
-        frequency_hz,
-        settled_at_s,
-        settled,
-        onset_s,
-        event_end_s,
-        run_end_s,
-        settled_after,
-        measurements,
-        min_rail_v,
-        rail: rail.map(|n| circuit.nodes[n].clone()),
-        comparator_toggles,
-        stats: state.stats,
-        trace,
-        envelope,
-    })
+    }
 }
