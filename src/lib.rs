@@ -24,6 +24,7 @@ pub mod probe;
 pub mod profile;
 pub mod scenario;
 pub mod summary;
+pub mod sweep;
 pub mod synth;
 pub mod units;
 pub mod waveform;

@@ -59,6 +59,49 @@ enum Command {
     /// Write a supply event as a WAV recording (to drive a bench amplifier or a waveform
     /// source, or to replay).
     Synth(SynthArgs),
+    /// Sweep dip depth (and swell level) against duration: the trip map and the refined
+    /// ride-through/trip boundary.
+    Sweep(SweepArgs),
+}
+
+#[derive(Args)]
+struct SweepArgs {
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    circuit: Option<PathBuf>,
+    /// Dip residual levels in % of nominal, FROM:TO:STEP.
+    #[arg(long, default_value = "0:90:10")]
+    levels: String,
+    /// Swell levels in % of nominal, FROM:TO:STEP (none unless given).
+    #[arg(long)]
+    swells: Option<String>,
+    /// Shortest and longest duration, e.g. 0.5cyc:10s.
+    #[arg(long, default_value = "0.5cyc:10s")]
+    durations: String,
+    /// Number of durations, spaced evenly on a log scale.
+    #[arg(long, default_value_t = 12)]
+    duration_count: usize,
+    /// Start phase angles in degrees, comma-separated; each cell reports the worst case.
+    #[arg(long, default_value = "0,90")]
+    phases: String,
+    /// Boundary resolution, % of nominal.
+    #[arg(long, default_value_t = 0.5)]
+    resolution: f64,
+    /// Skip the boundary refinement.
+    #[arg(long)]
+    no_refine: bool,
+    /// Write points.csv, cells.csv, boundary.csv and sweep.json into this folder.
+    #[arg(long)]
+    out: Option<PathBuf>,
+    /// No progress bar.
+    #[arg(long)]
+    quiet: bool,
+    /// Print the results as JSON.
+    #[arg(long)]
+    json: bool,
+    /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
+    #[arg(long)]
+    nominal: Option<String>,
 }
 
 #[derive(Args)]
@@ -183,6 +226,7 @@ fn main() -> ExitCode {
         }
         Command::Profiles => Ok(profiles()),
         Command::Synth(args) => synth(&args),
+        Command::Sweep(args) => sweep(&args),
     };
     match result {
         Ok(text) => {
@@ -903,4 +947,293 @@ fn synth(args: &SynthArgs) -> Result<String, String> {
     );
     say!(out, "onset at {onset:.6} s into the file");
     Ok(out)
+}
+
+/// Reads FROM:TO:STEP (percent) into the list of levels.
+fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
+    let parts: Vec<f64> = text
+        .split(':')
+        .map(|p| p.trim().trim_end_matches('%').parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| format!("--{name} {text}: expected FROM:TO:STEP in percent, e.g. 0:90:10"))?;
+    let [from, to, step] = parts.as_slice() else {
+        return Err(format!(
+            "--{name} {text}: expected FROM:TO:STEP in percent, e.g. 0:90:10"
+        ));
+    };
+    if *step <= 0.0 || to < from || *from < 0.0 {
+        return Err(format!(
+            "--{name} {text}: need 0 <= FROM <= TO and STEP > 0"
+        ));
+    }
+    let count = ((to - from) / step + 1e-9).floor() as usize + 1;
+    Ok((0..count).map(|k| from + step * k as f64).collect())
+}
+
+fn sweep(args: &SweepArgs) -> Result<String, String> {
+    use sagtrip::sweep::{cells, log_durations, refine_boundary, run_grid, Grid, Outcome};
+    let mut out = String::new();
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let options = EventOptions {
+        nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
+        ..EventOptions::default()
+    };
+    let mut levels = level_range(&args.levels, "levels")?;
+    if levels.iter().any(|&l| l >= 100.0) {
+        return Err("--levels: dip levels are below 100% (use --swells above it)".into());
+    }
+    let swells = args
+        .swells
+        .as_deref()
+        .map(|s| level_range(s, "swells"))
+        .transpose()?
+        .unwrap_or_default();
+    if swells.iter().any(|&l| l <= 100.0) {
+        return Err("--swells: swell levels are above 100%".into());
+    }
+    levels.extend(&swells);
+    let phases: Vec<f64> = args
+        .phases
+        .split(',')
+        .map(|p| p.trim().parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| format!("--phases {}: expected degrees, e.g. 0,90", args.phases))?;
+    let started = Instant::now();
+    let settled =
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+    let frequency = settled.frequency_hz;
+    let (first, last) = args.durations.split_once(':').ok_or_else(|| {
+        format!(
+            "--durations {}: expected SHORTEST:LONGEST, e.g. 0.5cyc:10s",
+            args.durations
+        )
+    })?;
+    let first = duration_option(first, "durations", frequency)?;
+    let last = duration_option(last, "durations", frequency)?;
+    if first <= 0.0 || last < first || args.duration_count == 0 {
+        return Err("--durations: need 0 < SHORTEST <= LONGEST and a positive count".into());
+    }
+    let grid = Grid {
+        levels_pct: levels,
+        durations_s: log_durations(first, last, args.duration_count),
+        phases_deg: phases,
+    };
+    let refine_dips = !args.no_refine;
+    let refine_swells = !args.no_refine && !swells.is_empty();
+    let total = grid.points().len();
+    let bar = if args.quiet {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::new(total as u64)
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{bar:40} {pos}/{len} points, {elapsed} elapsed, about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let points = run_grid(&settled, &circuit, &grid, DEFAULT_EDGE_S, &|| bar.inc(1));
+    bar.finish_and_clear();
+    let map = cells(&points);
+    let boundary: Vec<_> = if refine_dips {
+        grid.durations_s
+            .iter()
+            .map(|&d| {
+                refine_boundary(
+                    &settled,
+                    &circuit,
+                    d,
+                    &grid.phases_deg,
+                    (0.0, 100.0),
+                    args.resolution,
+                    DEFAULT_EDGE_S,
+                )
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let swell_boundary: Vec<_> = if refine_swells {
+        let top = swells.iter().copied().fold(100.0, f64::max);
+        grid.durations_s
+            .iter()
+            .map(|&d| {
+                refine_boundary(
+                    &settled,
+                    &circuit,
+                    d,
+                    &grid.phases_deg,
+                    (100.0, top),
+                    args.resolution,
+                    DEFAULT_EDGE_S,
+                )
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let wall = started.elapsed().as_secs_f64();
+    let failed = points
+        .iter()
+        .filter(|p| p.outcome == Outcome::Failed)
+        .count();
+
+    if let Some(dir) = &args.out {
+        std::fs::create_dir_all(dir)
+            .map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
+        let opt = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
+        write_atomic(&dir.join("points.csv"), |w| {
+            writeln!(
+                w,
+                "level_pct,duration_s,phase_deg,outcome,trip_latency_ms,restore_latency_ms,failure"
+            )?;
+            for p in &points {
+                writeln!(
+                    w,
+                    "{},{:.6},{},{},{},{},{}",
+                    p.level_pct,
+                    p.duration_s,
+                    p.phase_deg,
+                    serde_json::to_value(p.outcome)
+                        .ok()
+                        .and_then(|v| v.as_str().map(String::from))
+                        .unwrap_or_default(),
+                    opt(p.trip_latency_ms),
+                    opt(p.restore_latency_ms),
+                    p.failure.as_deref().unwrap_or("").replace(',', ";")
+                )?;
+            }
+            Ok(())
+        })
+        .map_err(|e| format!("cannot write points.csv: {e}"))?;
+        write_atomic(&dir.join("boundary.csv"), |w| {
+            writeln!(w, "side,duration_s,level_pct,resolution_pct")?;
+            for (side, list) in [("dip", &boundary), ("swell", &swell_boundary)] {
+                for b in list {
+                    writeln!(
+                        w,
+                        "{side},{:.6},{},{}",
+                        b.duration_s,
+                        opt(b.level_pct),
+                        b.resolution_pct
+                    )?;
+                }
+            }
+            Ok(())
+        })
+        .map_err(|e| format!("cannot write boundary.csv: {e}"))?;
+        let value = serde_json::json!({
+            "circuit": name,
+            "nominal_rms_v": settled.rms,
+            "frequency_hz": frequency,
+            "points": points,
+            "cells": map,
+            "dip_boundary": boundary,
+            "swell_boundary": swell_boundary,
+            "wall_time_s": wall,
+        });
+        write_atomic(&dir.join("sweep.json"), |w| {
+            w.write_all(
+                serde_json::to_string_pretty(&value)
+                    .unwrap_or_default()
+                    .as_bytes(),
+            )
+        })
+        .map_err(|e| format!("cannot write sweep.json: {e}"))?;
+    }
+    if args.json {
+        let value = serde_json::json!({
+            "circuit": name,
+            "points": points,
+            "cells": map,
+            "dip_boundary": boundary,
+            "swell_boundary": swell_boundary,
+            "wall_time_s": wall,
+        });
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+    say!(out, "{name}: {}", circuit.title);
+    say!(
+        out,
+        "{} points ({} levels x {} durations x {} phases) in {:.1} s{}",
+        total,
+        grid.levels_pct.len(),
+        grid.durations_s.len(),
+        grid.phases_deg.len(),
+        wall,
+        if failed > 0 {
+            format!(", {failed} FAILED")
+        } else {
+            String::new()
+        }
+    );
+    say!(
+        out,
+        "\nworst case over phases: . rides through, T trips, C chatters, ! failed\n"
+    );
+    let mut header = format!("{:>8} ", "level");
+    for d in &grid.durations_s {
+        header += &format!("{:>8}", short_duration(*d));
+    }
+    say!(out, "{header}");
+    for &l in grid.levels_pct.iter().rev() {
+        let mut row = format!("{:>7}% ", l);
+        for &d in &grid.durations_s {
+            let c = map.iter().find(|c| c.level_pct == l && c.duration_s == d);
+            let mark = match c.map(|c| (c.outcome, c.trip_latency_ms)) {
+                Some((Outcome::Trips, Some(t))) => format!("T{:.0}", t),
+                Some((Outcome::Trips, None)) => "T".into(),
+                Some((Outcome::Chatters, _)) => "C".into(),
+                Some((Outcome::RidesThrough, _)) => ".".into(),
+                _ => "!".into(),
+            };
+            row += &format!("{mark:>8}");
+        }
+        say!(out, "{row}");
+    }
+    say!(
+        out,
+        "(T followed by the longest trip latency over the phases, ms)"
+    );
+    for (side, list) in [("dip", &boundary), ("swell", &swell_boundary)] {
+        if list.is_empty() {
+            continue;
+        }
+        say!(
+            out,
+            "\n{side} boundary (refined to +/- {} % of nominal):",
+            args.resolution
+        );
+        for b in list {
+            match b.level_pct {
+                Some(l) => {
+                    say!(out, "  {:>10}  {:6.2} %", short_duration(b.duration_s), l);
+                }
+                None => {
+                    say!(out, "  {:>10}  none in range", short_duration(b.duration_s));
+                }
+            }
+        }
+    }
+    if let Some(dir) = &args.out {
+        say!(
+            out,
+            "\nwritten: {}/points.csv, boundary.csv, sweep.json",
+            dir.display()
+        );
+    }
+    Ok(out)
+}
+
+fn short_duration(s: f64) -> String {
+    if s < 1.0 {
+        format!("{:.0}ms", s * 1e3)
+    } else {
+        format!("{s:.1}s")
+    }
 }

@@ -1,0 +1,329 @@
+//! Depth-against-duration sweeps: the protector's response over a grid of residual (or
+//! swell) levels, durations and start phase angles, and the ride-through/trip boundary
+//! refined by bisection.
+//!
+//! The circuit is powered up and settled once ([`Settled`]); every point runs on a copy of
+//! that state, so a point costs only its event and recovery. Points run in parallel on a
+//! rayon pool; each returns a result or its failure, and the results come back in the
+//! grid's order whatever the number of threads.
+
+use rayon::prelude::*;
+use serde::Serialize;
+
+use crate::circuit::Circuit;
+use crate::profile::{Duration, Profile, Step};
+use crate::scenario::Settled;
+
+/// The response class of one point.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Outcome {
+    /// The point could not be simulated (see its failure reason).
+    Failed,
+    /// The load stayed connected.
+    RidesThrough,
+    /// The load was disconnected.
+    Trips,
+    /// The relay or a comparator chattered (see `docs/measurements.md`).
+    Chatters,
+}
+
+/// One simulated point of a sweep.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Point {
+    /// Level during the event, percent of nominal (below 100: a dip; above: a swell).
+    pub level_pct: f64,
+    /// Duration of the event, seconds.
+    pub duration_s: f64,
+    /// Start phase angle, degrees.
+    pub phase_deg: f64,
+    /// What happened.
+    pub outcome: Outcome,
+    /// Trip latency, milliseconds.
+    pub trip_latency_ms: Option<f64>,
+    /// Restore latency, milliseconds.
+    pub restore_latency_ms: Option<f64>,
+    /// Why the point failed, if it did.
+    pub failure: Option<String>,
+}
+
+/// The profile of a sweep point: a dip (or interruption) below 100%, a swell above.
+pub fn point_profile(level_pct: f64, duration_s: f64, phase_deg: f64, edge_s: f64) -> Profile {
+    let level = level_pct / 100.0;
+    let duration = Duration::Seconds(duration_s);
+    let step = if level > 1.0 {
+        Step::Swell { level, duration }
+    } else {
+        Step::Dip {
+            residual: level.max(0.0),
+            duration,
+        }
+    };
+    Profile {
+        steps: vec![step],
+        phase_deg,
+        edge_s,
+    }
+}
+
+/// Simulates one point from the settled protector.
+pub fn run_point(
+    settled: &Settled,
+    circuit: &Circuit,
+    level_pct: f64,
+    duration_s: f64,
+    phase_deg: f64,
+    edge_s: f64,
+) -> Point {
+    let profile = point_profile(level_pct, duration_s, phase_deg, edge_s);
+    match settled.run(circuit, &profile) {
+        Ok(run) => {
+            let m = &run.measurements;
+            let outcome = if m.chatter {
+                Outcome::Chatters
+            } else if m.tripped {
+                Outcome::Trips
+            } else {
+                Outcome::RidesThrough
+            };
+            Point {
+                level_pct,
+                duration_s,
+                phase_deg,
+                outcome,
+                trip_latency_ms: m.trip_latency_ms,
+                restore_latency_ms: m.restore_latency_ms,
+                failure: None,
+            }
+        }
+        Err(e) => Point {
+            level_pct,
+            duration_s,
+            phase_deg,
+            outcome: Outcome::Failed,
+            trip_latency_ms: None,
+            restore_latency_ms: None,
+            failure: Some(e.to_string()),
+        },
+    }
+}
+
+/// The grid of a sweep.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Grid {
+    /// Levels, percent of nominal.
+    pub levels_pct: Vec<f64>,
+    /// Durations, seconds.
+    pub durations_s: Vec<f64>,
+    /// Start phase angles, degrees.
+    pub phases_deg: Vec<f64>,
+}
+
+impl Grid {
+    /// Every (level, duration, phase) in order: level-major, then duration, then phase.
+    pub fn points(&self) -> Vec<(f64, f64, f64)> {
+        let mut out = Vec::with_capacity(
+            self.levels_pct.len() * self.durations_s.len() * self.phases_deg.len(),
+        );
+        for &l in &self.levels_pct {
+            for &d in &self.durations_s {
+                for &p in &self.phases_deg {
+                    out.push((l, d, p));
+                }
+            }
+        }
+        out
+    }
+}
+
+/// `count` durations spaced evenly on a log scale from `first_s` to `last_s`.
+pub fn log_durations(first_s: f64, last_s: f64, count: usize) -> Vec<f64> {
+    if count <= 1 {
+        return vec![first_s];
+    }
+    let ratio = (last_s / first_s).ln() / (count - 1) as f64;
+    (0..count)
+        .map(|k| first_s * (ratio * k as f64).exp())
+        .collect()
+}
+
+/// Runs every grid point in parallel, calling `progress` after each.
+pub fn run_grid(
+    settled: &Settled,
+    circuit: &Circuit,
+    grid: &Grid,
+    edge_s: f64,
+    progress: &(dyn Fn() + Sync),
+) -> Vec<Point> {
+    grid.points()
+        .into_par_iter()
+        .map(|(l, d, p)| {
+            let point = run_point(settled, circuit, l, d, p, edge_s);
+            progress();
+            point
+        })
+        .collect()
+}
+
+/// One cell of the map: the worst case over the phase angles of a (level, duration).
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Cell {
+    /// Level, percent of nominal.
+    pub level_pct: f64,
+    /// Duration, seconds.
+    pub duration_s: f64,
+    /// The most severe outcome over the phases (chatters > trips > rides through >
+    /// failed).
+    pub outcome: Outcome,
+    /// The longest trip latency over the phases that tripped, milliseconds.
+    pub trip_latency_ms: Option<f64>,
+    /// The longest restore latency over the phases, milliseconds.
+    pub restore_latency_ms: Option<f64>,
+}
+
+/// Reduces points to cells (worst case over phases), in grid order.
+pub fn cells(points: &[Point]) -> Vec<Cell> {
+    let mut out: Vec<Cell> = Vec::new();
+    for p in points {
+        let max = |a: Option<f64>, b: Option<f64>| match (a, b) {
+            (Some(x), Some(y)) => Some(x.max(y)),
+            (x, y) => x.or(y),
+        };
+        match out
+            .iter_mut()
+            .find(|c| c.level_pct == p.level_pct && c.duration_s == p.duration_s)
+        {
+            Some(c) => {
+                c.outcome = c.outcome.max(p.outcome);
+                c.trip_latency_ms = max(c.trip_latency_ms, p.trip_latency_ms);
+                c.restore_latency_ms = max(c.restore_latency_ms, p.restore_latency_ms);
+            }
+            None => out.push(Cell {
+                level_pct: p.level_pct,
+                duration_s: p.duration_s,
+                outcome: p.outcome,
+                trip_latency_ms: p.trip_latency_ms,
+                restore_latency_ms: p.restore_latency_ms,
+            }),
+        }
+    }
+    out
+}
+
+/// A point of the refined ride-through/trip boundary.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct BoundaryPoint {
+    /// Duration, seconds.
+    pub duration_s: f64,
+    /// The boundary level, percent of nominal: for dips, the highest residual that still
+    /// trips at some phase; for swells, the lowest level that trips at some phase. `None`
+    /// when nothing in the searched range trips (or everything does).
+    pub level_pct: Option<f64>,
+    /// Half the width of the final bracket, percent of nominal.
+    pub resolution_pct: f64,
+}
+
+/// Whether any of the phases trips (or chatters) at `level_pct`.
+fn trips_at(
+    settled: &Settled,
+    circuit: &Circuit,
+    level_pct: f64,
+    duration_s: f64,
+    phases: &[f64],
+    edge_s: f64,
+) -> bool {
+    phases.par_iter().any(|&p| {
+        matches!(
+            run_point(settled, circuit, level_pct, duration_s, p, edge_s).outcome,
+            Outcome::Trips | Outcome::Chatters
+        )
+    })
+}
+
+/// Finds, by bisection within `[low_pct, high_pct]`, the level where the response changes
+/// between trip and ride-through at duration `duration_s`, to within `resolution_pct`.
+/// For dips (`high_pct` <= 100) deeper (lower) levels trip; for swells higher levels trip.
+pub fn refine_boundary(
+    settled: &Settled,
+    circuit: &Circuit,
+    duration_s: f64,
+    phases: &[f64],
+    (low_pct, high_pct): (f64, f64),
+    resolution_pct: f64,
+    edge_s: f64,
+) -> BoundaryPoint {
+    let swell = low_pct >= 100.0;
+    // `tripping` is the end that trips, `riding` the end that rides through.
+    let (mut tripping, mut riding) = if swell {
+        (high_pct, low_pct)
+    } else {
+        (low_pct, high_pct)
+    };
+    let none = BoundaryPoint {
+        duration_s,
+        level_pct: None,
+        resolution_pct,
+    };
+    if !trips_at(settled, circuit, tripping, duration_s, phases, edge_s)
+        || trips_at(settled, circuit, riding, duration_s, phases, edge_s)
+    {
+        return none;
+    }
+    while (riding - tripping).abs() > 2.0 * resolution_pct {
+        let mid = 0.5 * (riding + tripping);
+        if trips_at(settled, circuit, mid, duration_s, phases, edge_s) {
+            tripping = mid;
+        } else {
+            riding = mid;
+        }
+    }
+    BoundaryPoint {
+        duration_s,
+        level_pct: Some(0.5 * (riding + tripping)),
+        resolution_pct: 0.5 * (riding - tripping).abs(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn log_spacing_and_grid_order() {
+        let d = log_durations(0.01, 10.0, 4);
+        assert!((d[0] - 0.01).abs() < 1e-15);
+        assert!((d[1] - 0.1).abs() < 1e-12);
+        assert!((d[3] - 10.0).abs() < 1e-9);
+        let g = Grid {
+            levels_pct: vec![0.0, 50.0],
+            durations_s: vec![0.1, 1.0],
+            phases_deg: vec![0.0, 90.0],
+        };
+        let p = g.points();
+        assert_eq!(p.len(), 8);
+        assert_eq!(p[0], (0.0, 0.1, 0.0));
+        assert_eq!(p[1], (0.0, 0.1, 90.0));
+        assert_eq!(p[7], (50.0, 1.0, 90.0));
+    }
+
+    #[test]
+    fn cells_take_the_worst_phase() {
+        let point = |phase, outcome, trip| Point {
+            level_pct: 40.0,
+            duration_s: 0.2,
+            phase_deg: phase,
+            outcome,
+            trip_latency_ms: trip,
+            restore_latency_ms: None,
+            failure: None,
+        };
+        let c = cells(&[
+            point(0.0, Outcome::RidesThrough, None),
+            point(90.0, Outcome::Trips, Some(70.0)),
+            point(180.0, Outcome::Trips, Some(75.0)),
+        ]);
+        assert_eq!(c.len(), 1);
+        assert_eq!(c[0].outcome, Outcome::Trips);
+        assert_eq!(c[0].trip_latency_ms, Some(75.0));
+    }
+}

@@ -1,0 +1,85 @@
+//! Sweeps: the refined boundary against a dense grid of the same circuit.
+
+mod common;
+
+use common::circuit;
+use sagtrip::profile::DEFAULT_EDGE_S;
+use sagtrip::scenario::{settle, EventOptions};
+use sagtrip::sweep::{cells, refine_boundary, run_grid, Grid, Outcome};
+
+#[test]
+fn refined_boundary_agrees_with_a_dense_grid() {
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let options = EventOptions {
+        restore_limit_s: 0.2,
+        ..EventOptions::default()
+    };
+    let settled = settle(&guard, &options).unwrap();
+    let duration = 0.3;
+    let phases = [0.0];
+    // Dense grid: 1% steps across the under-voltage threshold (about 87% of nominal).
+    let grid = Grid {
+        levels_pct: (80..=95).map(f64::from).collect(),
+        durations_s: vec![duration],
+        phases_deg: phases.to_vec(),
+    };
+    let points = run_grid(&settled, &guard, &grid, DEFAULT_EDGE_S, &|| {});
+    let map = cells(&points);
+    let highest_trip = map
+        .iter()
+        .filter(|c| matches!(c.outcome, Outcome::Trips | Outcome::Chatters))
+        .map(|c| c.level_pct)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let lowest_ride = map
+        .iter()
+        .filter(|c| c.outcome == Outcome::RidesThrough)
+        .map(|c| c.level_pct)
+        .fold(f64::INFINITY, f64::min);
+    // Deeper dips trip, shallower ones ride through, with one transition.
+    assert!(highest_trip < lowest_ride, "{map:?}");
+    assert!(lowest_ride - highest_trip <= 1.0 + 1e-9);
+    let b = refine_boundary(
+        &settled,
+        &guard,
+        duration,
+        &phases,
+        (0.0, 100.0),
+        0.5,
+        DEFAULT_EDGE_S,
+    );
+    let level = b.level_pct.unwrap();
+    assert!(b.resolution_pct <= 0.5);
+    assert!(
+        level >= highest_trip - 0.5 && level <= lowest_ride + 0.5,
+        "refined {level} vs grid transition between {highest_trip} and {lowest_ride}"
+    );
+    // Reference-guard.md: under-voltage trips somewhere near 200 V of 230 V (87%).
+    assert!((level - 87.0).abs() < 2.0, "{level}");
+}
+
+#[test]
+fn a_sweep_point_order_is_the_grid_order_whatever_the_threads() {
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let options = EventOptions {
+        restore_limit_s: 0.1,
+        ..EventOptions::default()
+    };
+    let settled = settle(&guard, &options).unwrap();
+    let grid = Grid {
+        levels_pct: vec![0.0, 95.0],
+        durations_s: vec![0.01, 0.2],
+        phases_deg: vec![0.0, 90.0],
+    };
+    let points = run_grid(&settled, &guard, &grid, DEFAULT_EDGE_S, &|| {});
+    let order: Vec<(f64, f64, f64)> = points
+        .iter()
+        .map(|p| (p.level_pct, p.duration_s, p.phase_deg))
+        .collect();
+    assert_eq!(order, grid.points());
+    // A half-cycle-ish 10 ms interruption rides through; 200 ms at 0% trips.
+    assert_eq!(points[0].outcome, Outcome::RidesThrough);
+    assert_eq!(points[2].outcome, Outcome::Trips);
+    // A second run gives the same numbers bit for bit (determinism).
+    let again = run_grid(&settled, &guard, &grid, DEFAULT_EDGE_S, &|| {});
+    assert_eq!(points, again);
+}
