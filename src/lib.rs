@@ -22,6 +22,7 @@ pub mod output;
 pub mod plot;
 pub mod probe;
 pub mod profile;
+pub mod reference_curves;
 pub mod scenario;
 pub mod summary;
 pub mod sweep;

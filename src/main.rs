@@ -90,9 +90,12 @@ struct SweepArgs {
     /// Skip the boundary refinement.
     #[arg(long)]
     no_refine: bool,
-    /// Write points.csv, cells.csv, boundary.csv and sweep.json into this folder.
+    /// Write points.csv, boundary.csv and sweep.json into this folder.
     #[arg(long)]
     out: Option<PathBuf>,
+    /// Draw the trip map with the reference curves into FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
     /// No progress bar.
     #[arg(long)]
     quiet: bool,
@@ -699,19 +702,17 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
             }
         }
     }
-    let plot_kind = match &args.plot {
-        None => None,
-        Some(path) => match path.extension().and_then(|e| e.to_str()) {
-            Some("svg") => Some(false),
-            Some("png") => Some(true),
-            _ => {
-                return Err(format!(
-                    "--plot {}: the file name must end in .svg or .png",
-                    path.display()
-                ))
-            }
-        },
-    };
+    if let Some(path) = &args.plot {
+        if !matches!(
+            path.extension().and_then(|e| e.to_str()),
+            Some("svg" | "png")
+        ) {
+            return Err(format!(
+                "--plot {}: the file name must end in .svg or .png",
+                path.display()
+            ));
+        }
+    }
     let mains =
         find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
     let frequency = options.nominal.map_or(mains.frequency_hz, |n| n.1);
@@ -740,21 +741,12 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
         write_atomic(path, |w| result.trace.write_csv(&circuit, w))
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
     }
-    if let (Some(path), Some(png)) = (&args.plot, plot_kind) {
-        if png {
-            // Drawn to a temporary file beside the target, then renamed: never half a PNG.
-            let temp = path.with_extension("png.partial.png");
-            sagtrip::plot::event_png(&result, &circuit, &name, &temp)
-                .and_then(|()| std::fs::rename(&temp, path).map_err(|e| e.to_string()))
-                .map_err(|e| {
-                    let _ = std::fs::remove_file(&temp);
-                    format!("cannot write plot {}: {e}", path.display())
-                })?;
-        } else {
-            let svg = sagtrip::plot::event_svg(&result, &circuit, &name)?;
-            write_atomic(path, |w| w.write_all(svg.as_bytes()))
-                .map_err(|e| format!("cannot write plot {}: {e}", path.display()))?;
-        }
+    if let Some(path) = &args.plot {
+        write_plot(
+            path,
+            |p| sagtrip::plot::event_png(&result, &circuit, &name, p),
+            || sagtrip::plot::event_svg(&result, &circuit, &name),
+        )?;
     }
     let m = &result.measurements;
     if args.json {
@@ -1077,6 +1069,23 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         .iter()
         .filter(|p| p.outcome == Outcome::Failed)
         .count();
+    if let Some(path) = &args.plot {
+        let mut sorted_levels = grid.levels_pct.clone();
+        sorted_levels.sort_by(f64::total_cmp);
+        let map_data = sagtrip::plot::MapData {
+            title: format!("Trip map: {} ({name})", circuit.title),
+            cells: &map,
+            durations_s: &grid.durations_s,
+            levels_pct: &sorted_levels,
+            boundaries: vec![&boundary, &swell_boundary],
+            frequency_hz: frequency,
+        };
+        write_plot(
+            path,
+            |p| sagtrip::plot::map_png(&map_data, p),
+            || sagtrip::plot::map_svg(&map_data),
+        )?;
+    }
 
     if let Some(dir) = &args.out {
         std::fs::create_dir_all(dir)
@@ -1227,7 +1236,38 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
             dir.display()
         );
     }
+    if let Some(path) = &args.plot {
+        say!(out, "map: {}", path.display());
+    }
     Ok(out)
+}
+
+/// Writes a plot as SVG or PNG by the file's extension, whole or not at all.
+fn write_plot(
+    path: &Path,
+    png: impl FnOnce(&Path) -> Result<(), String>,
+    svg: impl FnOnce() -> Result<String, String>,
+) -> Result<(), String> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("png") => {
+            let temp = path.with_extension("png.partial.png");
+            png(&temp)
+                .and_then(|()| std::fs::rename(&temp, path).map_err(|e| e.to_string()))
+                .map_err(|e| {
+                    let _ = std::fs::remove_file(&temp);
+                    format!("cannot write plot {}: {e}", path.display())
+                })
+        }
+        Some("svg") => {
+            let text = svg()?;
+            write_atomic(path, |w| w.write_all(text.as_bytes()))
+                .map_err(|e| format!("cannot write plot {}: {e}", path.display()))
+        }
+        _ => Err(format!(
+            "--plot {}: the file name must end in .svg or .png",
+            path.display()
+        )),
+    }
 }
 
 fn short_duration(s: f64) -> String {

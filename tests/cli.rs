@@ -292,3 +292,54 @@ fn event_plots_are_written_as_svg_and_png() {
     let out = sagtrip(&["run", "--event", "interrupt:1cyc", "--plot", "x.pdf"]);
     assert!(!out.status.success());
 }
+
+#[test]
+fn sweep_writes_the_map_and_its_tables() {
+    let dir = temp_path("sweep-out");
+    let svg = temp_path("map.svg");
+    let out = sagtrip(&[
+        "sweep",
+        "--levels",
+        "0:80:80",
+        "--durations",
+        "1cyc:200ms",
+        "--duration-count",
+        "2",
+        "--phases",
+        "0",
+        "--no-refine",
+        "--quiet",
+        "--out",
+        dir.to_str().unwrap(),
+        "--plot",
+        svg.to_str().unwrap(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(
+        text.contains("4 points (2 levels x 2 durations x 1 phases)"),
+        "{text}"
+    );
+    let csv = std::fs::read_to_string(dir.join("points.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 5);
+    assert!(csv.starts_with("level_pct,duration_s,phase_deg,outcome"));
+    // A one-cycle interruption rides through; 200 ms at 0% trips.
+    assert!(csv.contains("0,0.020000,0,rides-through"), "{csv}");
+    assert!(csv.contains("0,0.200000,0,trips"), "{csv}");
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("sweep.json")).unwrap()).unwrap();
+    assert_eq!(json["points"].as_array().unwrap().len(), 4);
+    let map = std::fs::read_to_string(&svg).unwrap();
+    for label in [
+        "ITI (CBEMA) 2000",
+        "SEMI F47-0706",
+        "IEC 61000-4-11",
+        "event duration",
+    ] {
+        assert!(map.contains(label), "{label}");
+    }
+}
