@@ -62,6 +62,8 @@ enum Command {
     /// Sweep dip depth (and swell level) against duration: the trip map and the refined
     /// ride-through/trip boundary.
     Sweep(SweepArgs),
+    /// Join the folders of a sharded sweep into one result and map.
+    Merge(MergeArgs),
 }
 
 #[derive(Args)]
@@ -90,7 +92,8 @@ struct SweepArgs {
     /// Skip the boundary refinement.
     #[arg(long)]
     no_refine: bool,
-    /// Write points.csv, boundary.csv and sweep.json into this folder.
+    /// Journal the sweep into this folder as it runs (points.csv, boundary.csv) and write
+    /// sweep.json at the end.
     #[arg(long)]
     out: Option<PathBuf>,
     /// Draw the trip map with the reference curves into FILE.svg or FILE.png.
@@ -105,6 +108,26 @@ struct SweepArgs {
     /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
     #[arg(long)]
     nominal: Option<String>,
+    /// Run only the K-th of N deterministic shares of the grid (for array jobs); join the
+    /// shards' folders with `sagtrip merge`.
+    #[arg(long)]
+    shard: Option<String>,
+    /// Continue the sweep journaled in --out, skipping the points it already holds.
+    #[arg(long)]
+    resume: bool,
+}
+
+#[derive(Args)]
+struct MergeArgs {
+    /// The folders of the shards (each written by `sweep --shard K/N --out FOLDER`).
+    #[arg(required = true)]
+    folders: Vec<PathBuf>,
+    /// Folder for the merged points.csv, boundary.csv and sweep.json.
+    #[arg(long)]
+    out: PathBuf,
+    /// Draw the merged trip map into FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
 }
 
 #[derive(Args)]
@@ -230,6 +253,7 @@ fn main() -> ExitCode {
         Command::Profiles => Ok(profiles()),
         Command::Synth(args) => synth(&args),
         Command::Sweep(args) => sweep(&args),
+        Command::Merge(args) => merge(&args),
     };
     match result {
         Ok(text) => {
@@ -962,9 +986,131 @@ fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
     Ok((0..count).map(|k| from + step * k as f64).collect())
 }
 
+/// The journal of a sweep in a folder: its settings, and the points and boundary points
+/// appended as they complete, so that an interrupted sweep loses nothing.
+struct Journal {
+    points: std::sync::Mutex<std::fs::File>,
+    boundary: std::sync::Mutex<std::fs::File>,
+}
+
+/// What a journal folder holds on opening.
+type JournalContents = (
+    Journal,
+    Vec<sagtrip::sweep::Point>,
+    Vec<(String, sagtrip::sweep::BoundaryPoint)>,
+);
+
+impl Journal {
+    /// Opens `dir` for a sweep with `settings`: a fresh folder, or with `resume` one holding
+    /// the same sweep (its completed points and boundary points are returned).
+    fn open(
+        dir: &Path,
+        settings: &serde_json::Value,
+        resume: bool,
+    ) -> Result<JournalContents, String> {
+        use sagtrip::sweep::{BOUNDARY_HEADER, POINTS_HEADER};
+        std::fs::create_dir_all(dir)
+            .map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
+        let settings_path = dir.join("sweep-settings.json");
+        let (points, boundary) = if settings_path.exists() {
+            if !resume {
+                return Err(format!(
+                    "{} already holds a sweep: add --resume to continue it, or choose another folder",
+                    dir.display()
+                ));
+            }
+            let text = std::fs::read_to_string(&settings_path)
+                .map_err(|e| format!("cannot read {}: {e}", settings_path.display()))?;
+            let before: serde_json::Value = serde_json::from_str(&text)
+                .map_err(|e| format!("{}: {e}", settings_path.display()))?;
+            if &before != settings {
+                return Err(format!(
+                    "{} holds a sweep with other settings; --resume needs the same circuit, grid and options",
+                    dir.display()
+                ));
+            }
+            (
+                read_journal(&dir.join("points.csv")),
+                read_journal(&dir.join("boundary.csv")),
+            )
+        } else {
+            write_atomic(&settings_path, |w| {
+                w.write_all(
+                    serde_json::to_string_pretty(settings)
+                        .unwrap_or_default()
+                        .as_bytes(),
+                )
+            })
+            .map_err(|e| format!("cannot write {}: {e}", settings_path.display()))?;
+            (Vec::new(), Vec::new())
+        };
+        let points_done = points
+            .iter()
+            .filter_map(|l| sagtrip::sweep::parse_point_line(l))
+            .collect();
+        let boundary_done = boundary
+            .iter()
+            .filter_map(|l| sagtrip::sweep::parse_boundary_line(l))
+            .collect();
+        let open = |name: &str, header: &str| -> Result<std::fs::File, String> {
+            let path = dir.join(name);
+            let fresh = !path.exists();
+            let mut file = std::fs::OpenOptions::new()
+                .create(true)
+                .append(true)
+                .open(&path)
+                .map_err(|e| format!("cannot open {}: {e}", path.display()))?;
+            if fresh {
+                writeln!(file, "{header}")
+                    .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+            }
+            Ok(file)
+        };
+        Ok((
+            Journal {
+                points: std::sync::Mutex::new(open("points.csv", POINTS_HEADER)?),
+                boundary: std::sync::Mutex::new(open("boundary.csv", BOUNDARY_HEADER)?),
+            },
+            points_done,
+            boundary_done,
+        ))
+    }
+
+    fn append(file: &std::sync::Mutex<std::fs::File>, line: &str) {
+        if let Ok(mut f) = file.lock() {
+            // A failed append only costs the point on a later resume.
+            let _ = writeln!(f, "{line}").and_then(|()| f.flush());
+        }
+    }
+}
+
+/// The lines after the header of a journal file, or none.
+fn read_journal(path: &Path) -> Vec<String> {
+    std::fs::read_to_string(path)
+        .map(|t| t.lines().skip(1).map(String::from).collect())
+        .unwrap_or_default()
+}
+
+/// Reads `--shard K/N`.
+fn shard_option(text: &str) -> Result<(usize, usize), String> {
+    let parsed = text.split_once('/').and_then(|(k, n)| {
+        Some((
+            k.trim().parse::<usize>().ok()?,
+            n.trim().parse::<usize>().ok()?,
+        ))
+    });
+    match parsed {
+        Some((k, n)) if n >= 1 && (1..=n).contains(&k) => Ok((k, n)),
+        _ => Err(format!(
+            "--shard {text}: expected K/N with 1 <= K <= N, e.g. 2/8"
+        )),
+    }
+}
+
 fn sweep(args: &SweepArgs) -> Result<String, String> {
-    use sagtrip::sweep::{cells, log_durations, refine_boundary, run_grid, Grid, Outcome};
-    let mut out = String::new();
+    use sagtrip::sweep::{
+        boundary_line, log_durations, point_line, refine_boundary, run_points, shard, Grid,
+    };
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = EventOptions {
         nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
@@ -990,6 +1136,15 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         .map(|p| p.trim().parse::<f64>())
         .collect::<Result<_, _>>()
         .map_err(|_| format!("--phases {}: expected degrees, e.g. 0,90", args.phases))?;
+    let (k, n) = args
+        .shard
+        .as_deref()
+        .map(shard_option)
+        .transpose()?
+        .unwrap_or((1, 1));
+    if args.resume && args.out.is_none() {
+        return Err("--resume needs --out DIR (the folder of the sweep to continue)".into());
+    }
     let started = Instant::now();
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
@@ -1010,13 +1165,42 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         durations_s: log_durations(first, last, args.duration_count),
         phases_deg: phases,
     };
-    let refine_dips = !args.no_refine;
-    let refine_swells = !args.no_refine && !swells.is_empty();
-    let total = grid.points().len();
+    let settings = serde_json::json!({
+        "circuit": name,
+        "title": circuit.title,
+        "nominal_rms_v": settled.rms,
+        "frequency_hz": frequency,
+        "levels_pct": grid.levels_pct,
+        "swells": !swells.is_empty(),
+        "durations_s": grid.durations_s,
+        "phases_deg": grid.phases_deg,
+        "resolution_pct": args.resolution,
+        "refine": !args.no_refine,
+        "shard": format!("{k}/{n}"),
+    });
+    let (journal, done_points, done_boundary) = match &args.out {
+        Some(dir) => {
+            let (j, p, b) = Journal::open(dir, &settings, args.resume)?;
+            (Some(j), p, b)
+        }
+        None => (None, Vec::new(), Vec::new()),
+    };
+
+    // This shard's points not yet in the journal.
+    let mine = shard(&grid.points(), k, n);
+    let todo: Vec<(f64, f64, f64)> = mine
+        .iter()
+        .copied()
+        .filter(|&(l, d, p)| {
+            !done_points
+                .iter()
+                .any(|x| x.level_pct == l && x.duration_s == d && x.phase_deg == p)
+        })
+        .collect();
     let bar = if args.quiet {
         indicatif::ProgressBar::hidden()
     } else {
-        indicatif::ProgressBar::new(total as u64)
+        indicatif::ProgressBar::new(todo.len() as u64)
     };
     bar.set_style(
         indicatif::ProgressStyle::with_template(
@@ -1024,123 +1208,122 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         )
         .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    let points = run_grid(&settled, &circuit, &grid, DEFAULT_EDGE_S, &|| bar.inc(1));
+    let fresh = run_points(&settled, &circuit, &todo, DEFAULT_EDGE_S, &|p| {
+        if let Some(j) = &journal {
+            Journal::append(&j.points, &point_line(p));
+        }
+        bar.inc(1);
+    });
     bar.finish_and_clear();
-    let map = cells(&points);
-    let boundary: Vec<_> = if refine_dips {
-        grid.durations_s
-            .iter()
-            .map(|&d| {
-                refine_boundary(
-                    &settled,
-                    &circuit,
-                    d,
-                    &grid.phases_deg,
-                    (0.0, 100.0),
-                    args.resolution,
-                    DEFAULT_EDGE_S,
-                )
-            })
-            .collect()
-    } else {
-        Vec::new()
-    };
-    let swell_boundary: Vec<_> = if refine_swells {
-        let top = swells.iter().copied().fold(100.0, f64::max);
-        grid.durations_s
-            .iter()
-            .map(|&d| {
-                refine_boundary(
-                    &settled,
-                    &circuit,
-                    d,
-                    &grid.phases_deg,
-                    (100.0, top),
-                    args.resolution,
-                    DEFAULT_EDGE_S,
-                )
-            })
-            .collect()
-    } else {
-        Vec::new()
-    };
+    let mut points = done_points;
+    points.extend(fresh);
+
+    // Boundaries for this shard's durations not yet in the journal.
+    let mut boundaries = done_boundary;
+    let my_durations = shard(&grid.durations_s, k, n);
+    let mut sides: Vec<(&str, (f64, f64))> = Vec::new();
+    if !args.no_refine {
+        sides.push(("dip", (0.0, 100.0)));
+        if !swells.is_empty() {
+            sides.push((
+                "swell",
+                (100.0, swells.iter().copied().fold(100.0, f64::max)),
+            ));
+        }
+    }
+    for (side, range) in sides {
+        for &d in &my_durations {
+            if boundaries
+                .iter()
+                .any(|(s, b)| s == side && b.duration_s == d)
+            {
+                continue;
+            }
+            let b = refine_boundary(
+                &settled,
+                &circuit,
+                d,
+                &grid.phases_deg,
+                range,
+                args.resolution,
+                DEFAULT_EDGE_S,
+            );
+            if let Some(j) = &journal {
+                Journal::append(&j.boundary, &boundary_line(side, &b));
+            }
+            boundaries.push((side.to_string(), b));
+        }
+    }
     let wall = started.elapsed().as_secs_f64();
+    report_sweep(
+        &SweepReport {
+            name: &name,
+            title: &circuit.title,
+            grid: &grid,
+            points: &points,
+            boundaries: &boundaries,
+            frequency_hz: frequency,
+            resolution_pct: args.resolution,
+            shard: (k, n),
+            wall_s: wall,
+        },
+        args.out.as_deref(),
+        args.plot.as_deref(),
+        args.json,
+    )
+}
+
+/// Everything a sweep report shows.
+struct SweepReport<'a> {
+    name: &'a str,
+    title: &'a str,
+    grid: &'a sagtrip::sweep::Grid,
+    points: &'a [sagtrip::sweep::Point],
+    boundaries: &'a [(String, sagtrip::sweep::BoundaryPoint)],
+    frequency_hz: f64,
+    resolution_pct: f64,
+    shard: (usize, usize),
+    wall_s: f64,
+}
+
+/// Writes sweep.json (and the plot), and renders the text or JSON report.
+fn report_sweep(
+    r: &SweepReport<'_>,
+    out_dir: Option<&Path>,
+    plot: Option<&Path>,
+    json: bool,
+) -> Result<String, String> {
+    use sagtrip::sweep::{cells, in_grid_order, Outcome};
+    let mut out = String::new();
+    let points = in_grid_order(r.grid, r.points);
+    let map = cells(&points);
+    let side = |s: &str| -> Vec<sagtrip::sweep::BoundaryPoint> {
+        let mut list: Vec<_> = r
+            .boundaries
+            .iter()
+            .filter(|(x, _)| x == s)
+            .map(|(_, b)| b.clone())
+            .collect();
+        list.sort_by(|a, b| a.duration_s.total_cmp(&b.duration_s));
+        list
+    };
+    let (dips, swells) = (side("dip"), side("swell"));
     let failed = points
         .iter()
         .filter(|p| p.outcome == Outcome::Failed)
         .count();
-    if let Some(path) = &args.plot {
-        let mut sorted_levels = grid.levels_pct.clone();
-        sorted_levels.sort_by(f64::total_cmp);
-        let map_data = sagtrip::plot::MapData {
-            title: format!("Trip map: {} ({name})", circuit.title),
-            cells: &map,
-            durations_s: &grid.durations_s,
-            levels_pct: &sorted_levels,
-            boundaries: vec![&boundary, &swell_boundary],
-            frequency_hz: frequency,
-        };
-        write_plot(
-            path,
-            |p| sagtrip::plot::map_png(&map_data, p),
-            || sagtrip::plot::map_svg(&map_data),
-        )?;
-    }
-
-    if let Some(dir) = &args.out {
-        std::fs::create_dir_all(dir)
-            .map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
-        let opt = |v: Option<f64>| v.map_or(String::new(), |v| format!("{v:.4}"));
-        write_atomic(&dir.join("points.csv"), |w| {
-            writeln!(
-                w,
-                "level_pct,duration_s,phase_deg,outcome,trip_latency_ms,restore_latency_ms,failure"
-            )?;
-            for p in &points {
-                writeln!(
-                    w,
-                    "{},{:.6},{},{},{},{},{}",
-                    p.level_pct,
-                    p.duration_s,
-                    p.phase_deg,
-                    serde_json::to_value(p.outcome)
-                        .ok()
-                        .and_then(|v| v.as_str().map(String::from))
-                        .unwrap_or_default(),
-                    opt(p.trip_latency_ms),
-                    opt(p.restore_latency_ms),
-                    p.failure.as_deref().unwrap_or("").replace(',', ";")
-                )?;
-            }
-            Ok(())
-        })
-        .map_err(|e| format!("cannot write points.csv: {e}"))?;
-        write_atomic(&dir.join("boundary.csv"), |w| {
-            writeln!(w, "side,duration_s,level_pct,resolution_pct")?;
-            for (side, list) in [("dip", &boundary), ("swell", &swell_boundary)] {
-                for b in list {
-                    writeln!(
-                        w,
-                        "{side},{:.6},{},{}",
-                        b.duration_s,
-                        opt(b.level_pct),
-                        b.resolution_pct
-                    )?;
-                }
-            }
-            Ok(())
-        })
-        .map_err(|e| format!("cannot write boundary.csv: {e}"))?;
-        let value = serde_json::json!({
-            "circuit": name,
-            "nominal_rms_v": settled.rms,
-            "frequency_hz": frequency,
-            "points": points,
-            "cells": map,
-            "dip_boundary": boundary,
-            "swell_boundary": swell_boundary,
-            "wall_time_s": wall,
-        });
+    let value = serde_json::json!({
+        "circuit": r.name,
+        "title": r.title,
+        "frequency_hz": r.frequency_hz,
+        "shard": format!("{}/{}", r.shard.0, r.shard.1),
+        "points": points,
+        "cells": map,
+        "dip_boundary": dips,
+        "swell_boundary": swells,
+        "wall_time_s": r.wall_s,
+    });
+    if let Some(dir) = out_dir {
         write_atomic(&dir.join("sweep.json"), |w| {
             w.write_all(
                 serde_json::to_string_pretty(&value)
@@ -1150,15 +1333,24 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         })
         .map_err(|e| format!("cannot write sweep.json: {e}"))?;
     }
-    if args.json {
-        let value = serde_json::json!({
-            "circuit": name,
-            "points": points,
-            "cells": map,
-            "dip_boundary": boundary,
-            "swell_boundary": swell_boundary,
-            "wall_time_s": wall,
-        });
+    if let Some(path) = plot {
+        let mut sorted_levels = r.grid.levels_pct.clone();
+        sorted_levels.sort_by(f64::total_cmp);
+        let map_data = sagtrip::plot::MapData {
+            title: format!("Trip map: {} ({})", r.title, r.name),
+            cells: &map,
+            durations_s: &r.grid.durations_s,
+            levels_pct: &sorted_levels,
+            boundaries: vec![&dips, &swells],
+            frequency_hz: r.frequency_hz,
+        };
+        write_plot(
+            path,
+            |p| sagtrip::plot::map_png(&map_data, p),
+            || sagtrip::plot::map_svg(&map_data),
+        )?;
+    }
+    if json {
         say!(
             out,
             "{}",
@@ -1166,15 +1358,20 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         );
         return Ok(out);
     }
-    say!(out, "{name}: {}", circuit.title);
+    say!(out, "{}: {}", r.name, r.title);
     say!(
         out,
-        "{} points ({} levels x {} durations x {} phases) in {:.1} s{}",
-        total,
-        grid.levels_pct.len(),
-        grid.durations_s.len(),
-        grid.phases_deg.len(),
-        wall,
+        "{} points ({} levels x {} durations x {} phases{}) in {:.1} s{}",
+        points.len(),
+        r.grid.levels_pct.len(),
+        r.grid.durations_s.len(),
+        r.grid.phases_deg.len(),
+        if r.shard.1 > 1 {
+            format!(", shard {} of {}", r.shard.0, r.shard.1)
+        } else {
+            String::new()
+        },
+        r.wall_s,
         if failed > 0 {
             format!(", {failed} FAILED")
         } else {
@@ -1183,23 +1380,26 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
     );
     say!(
         out,
-        "\nworst case over phases: . rides through, T trips, C chatters, ! failed\n"
+        "\nworst case over phases: . rides through, T trips, C chatters, ! failed, blank not run\n"
     );
     let mut header = format!("{:>8} ", "level");
-    for d in &grid.durations_s {
+    for d in &r.grid.durations_s {
         header += &format!("{:>8}", short_duration(*d));
     }
     say!(out, "{header}");
-    for &l in grid.levels_pct.iter().rev() {
+    let mut levels = r.grid.levels_pct.clone();
+    levels.sort_by(|a, b| b.total_cmp(a));
+    for l in levels {
         let mut row = format!("{:>7}% ", l);
-        for &d in &grid.durations_s {
+        for &d in &r.grid.durations_s {
             let c = map.iter().find(|c| c.level_pct == l && c.duration_s == d);
             let mark = match c.map(|c| (c.outcome, c.trip_latency_ms)) {
-                Some((Outcome::Trips, Some(t))) => format!("T{:.0}", t),
+                Some((Outcome::Trips, Some(t))) => format!("T{t:.0}"),
                 Some((Outcome::Trips, None)) => "T".into(),
                 Some((Outcome::Chatters, _)) => "C".into(),
                 Some((Outcome::RidesThrough, _)) => ".".into(),
-                _ => "!".into(),
+                Some((Outcome::Failed, _)) => "!".into(),
+                None => String::new(),
             };
             row += &format!("{mark:>8}");
         }
@@ -1209,14 +1409,14 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         out,
         "(T followed by the longest trip latency over the phases, ms)"
     );
-    for (side, list) in [("dip", &boundary), ("swell", &swell_boundary)] {
+    for (side, list) in [("dip", &dips), ("swell", &swells)] {
         if list.is_empty() {
             continue;
         }
         say!(
             out,
             "\n{side} boundary (refined to +/- {} % of nominal):",
-            args.resolution
+            r.resolution_pct
         );
         for b in list {
             match b.level_pct {
@@ -1229,17 +1429,110 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
             }
         }
     }
-    if let Some(dir) = &args.out {
+    if let Some(dir) = out_dir {
         say!(
             out,
             "\nwritten: {}/points.csv, boundary.csv, sweep.json",
             dir.display()
         );
     }
-    if let Some(path) = &args.plot {
+    if let Some(path) = plot {
         say!(out, "map: {}", path.display());
     }
     Ok(out)
+}
+
+/// Joins the folders of a sharded sweep into one result.
+fn merge(args: &MergeArgs) -> Result<String, String> {
+    use sagtrip::sweep::{parse_boundary_line, parse_point_line, Grid};
+    let mut settings: Option<serde_json::Value> = None;
+    let mut points = Vec::new();
+    let mut boundaries = Vec::new();
+    for dir in &args.folders {
+        let path = dir.join("sweep-settings.json");
+        let text = std::fs::read_to_string(&path)
+            .map_err(|e| format!("cannot read {}: {e}", path.display()))?;
+        let mut s: serde_json::Value =
+            serde_json::from_str(&text).map_err(|e| format!("{}: {e}", path.display()))?;
+        if let serde_json::Value::Object(m) = &mut s {
+            m.remove("shard");
+        }
+        match &settings {
+            None => settings = Some(s),
+            Some(first) if *first != s => {
+                return Err(format!(
+                    "{} holds a sweep with other settings than {}: only shards of one sweep merge",
+                    dir.display(),
+                    args.folders[0].display()
+                ))
+            }
+            Some(_) => {}
+        }
+        points.extend(
+            read_journal(&dir.join("points.csv"))
+                .iter()
+                .filter_map(|l| parse_point_line(l)),
+        );
+        boundaries.extend(
+            read_journal(&dir.join("boundary.csv"))
+                .iter()
+                .filter_map(|l| parse_boundary_line(l)),
+        );
+    }
+    let settings = settings.ok_or("merge needs at least one folder")?;
+    let numbers = |key: &str| -> Vec<f64> {
+        settings[key]
+            .as_array()
+            .map(|a| a.iter().filter_map(serde_json::Value::as_f64).collect())
+            .unwrap_or_default()
+    };
+    let grid = Grid {
+        levels_pct: numbers("levels_pct"),
+        durations_s: numbers("durations_s"),
+        phases_deg: numbers("phases_deg"),
+    };
+    std::fs::create_dir_all(&args.out)
+        .map_err(|e| format!("cannot create {}: {e}", args.out.display()))?;
+    let ordered = sagtrip::sweep::in_grid_order(&grid, &points);
+    write_atomic(&args.out.join("points.csv"), |w| {
+        writeln!(w, "{}", sagtrip::sweep::POINTS_HEADER)?;
+        for p in &ordered {
+            writeln!(w, "{}", sagtrip::sweep::point_line(p))?;
+        }
+        Ok(())
+    })
+    .map_err(|e| format!("cannot write points.csv: {e}"))?;
+    write_atomic(&args.out.join("boundary.csv"), |w| {
+        writeln!(w, "{}", sagtrip::sweep::BOUNDARY_HEADER)?;
+        for (side, b) in &boundaries {
+            writeln!(w, "{}", sagtrip::sweep::boundary_line(side, b))?;
+        }
+        Ok(())
+    })
+    .map_err(|e| format!("cannot write boundary.csv: {e}"))?;
+    let missing = grid.points().len().saturating_sub(ordered.len());
+    let name = settings["circuit"].as_str().unwrap_or("").to_string();
+    let title = settings["title"].as_str().unwrap_or("").to_string();
+    let mut text = report_sweep(
+        &SweepReport {
+            name: &name,
+            title: &title,
+            grid: &grid,
+            points: &ordered,
+            boundaries: &boundaries,
+            frequency_hz: settings["frequency_hz"].as_f64().unwrap_or(50.0),
+            resolution_pct: settings["resolution_pct"].as_f64().unwrap_or(0.5),
+            shard: (1, 1),
+            wall_s: 0.0,
+        },
+        Some(&args.out),
+        args.plot.as_deref(),
+        false,
+    )?;
+    if missing > 0 {
+        text += &format!("WARNING: {missing} grid points are in none of the folders (a shard not run or not finished)\n");
+    }
+    Ok(text)
 }
 
 /// Writes a plot as SVG or PNG by the file's extension, whole or not at all.

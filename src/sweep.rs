@@ -142,8 +142,13 @@ pub fn log_durations(first_s: f64, last_s: f64, count: usize) -> Vec<f64> {
         return vec![first_s];
     }
     let ratio = (last_s / first_s).ln() / (count - 1) as f64;
+    // The ends exactly as given, the rest between.
     (0..count)
-        .map(|k| first_s * (ratio * k as f64).exp())
+        .map(|k| match k {
+            0 => first_s,
+            k if k == count - 1 => last_s,
+            k => first_s * (ratio * k as f64).exp(),
+        })
         .collect()
 }
 
@@ -325,5 +330,195 @@ mod tests {
         assert_eq!(c.len(), 1);
         assert_eq!(c[0].outcome, Outcome::Trips);
         assert_eq!(c[0].trip_latency_ms, Some(75.0));
+    }
+}
+
+/// Header of a points journal (`points.csv`).
+pub const POINTS_HEADER: &str =
+    "level_pct,duration_s,phase_deg,outcome,trip_latency_ms,restore_latency_ms,failure";
+
+/// Header of a boundary journal (`boundary.csv`).
+pub const BOUNDARY_HEADER: &str = "side,duration_s,level_pct,resolution_pct";
+
+fn outcome_name(o: Outcome) -> &'static str {
+    match o {
+        Outcome::Failed => "failed",
+        Outcome::RidesThrough => "rides-through",
+        Outcome::Trips => "trips",
+        Outcome::Chatters => "chatters",
+    }
+}
+
+fn outcome_from(name: &str) -> Option<Outcome> {
+    Some(match name {
+        "failed" => Outcome::Failed,
+        "rides-through" => Outcome::RidesThrough,
+        "trips" => Outcome::Trips,
+        "chatters" => Outcome::Chatters,
+        _ => return None,
+    })
+}
+
+fn optional(v: Option<f64>) -> String {
+    v.map_or(String::new(), |v| v.to_string())
+}
+
+fn parse_optional(text: &str) -> Option<Option<f64>> {
+    if text.is_empty() {
+        Some(None)
+    } else {
+        text.parse().ok().map(Some)
+    }
+}
+
+/// One line of the points journal. Numbers are written in full (shortest round-trip form),
+/// so a resumed sweep recognises its points exactly.
+pub fn point_line(p: &Point) -> String {
+    format!(
+        "{},{},{},{},{},{},{}",
+        p.level_pct,
+        p.duration_s,
+        p.phase_deg,
+        outcome_name(p.outcome),
+        optional(p.trip_latency_ms),
+        optional(p.restore_latency_ms),
+        p.failure
+            .as_deref()
+            .unwrap_or("")
+            .replace([',', '\n', '\r'], ";")
+    )
+}
+
+/// Reads a journal line; `None` for a malformed (for example half-written) line.
+pub fn parse_point_line(line: &str) -> Option<Point> {
+    let f: Vec<&str> = line.splitn(7, ',').collect();
+    if f.len() != 7 {
+        return None;
+    }
+    Some(Point {
+        level_pct: f[0].parse().ok()?,
+        duration_s: f[1].parse().ok()?,
+        phase_deg: f[2].parse().ok()?,
+        outcome: outcome_from(f[3])?,
+        trip_latency_ms: parse_optional(f[4])?,
+        restore_latency_ms: parse_optional(f[5])?,
+        failure: (!f[6].is_empty()).then(|| f[6].to_string()),
+    })
+}
+
+/// One line of the boundary journal.
+pub fn boundary_line(side: &str, b: &BoundaryPoint) -> String {
+    format!(
+        "{side},{},{},{}",
+        b.duration_s,
+        optional(b.level_pct),
+        b.resolution_pct
+    )
+}
+
+/// Reads a boundary journal line: (side, point).
+pub fn parse_boundary_line(line: &str) -> Option<(String, BoundaryPoint)> {
+    let f: Vec<&str> = line.split(',').collect();
+    if f.len() != 4 || !(f[0] == "dip" || f[0] == "swell") {
+        return None;
+    }
+    Some((
+        f[0].to_string(),
+        BoundaryPoint {
+            duration_s: f[1].parse().ok()?,
+            level_pct: parse_optional(f[2])?,
+            resolution_pct: f[3].parse().ok()?,
+        },
+    ))
+}
+
+/// Runs `list` in parallel, calling `done` with each point as it completes (from whichever
+/// thread ran it); returns the points in `list`'s order.
+pub fn run_points(
+    settled: &Settled,
+    circuit: &Circuit,
+    list: &[(f64, f64, f64)],
+    edge_s: f64,
+    done: &(dyn Fn(&Point) + Sync),
+) -> Vec<Point> {
+    list.par_iter()
+        .map(|&(l, d, p)| {
+            let point = run_point(settled, circuit, l, d, p, edge_s);
+            done(&point);
+            point
+        })
+        .collect()
+}
+
+/// The share `k` (1-based) of `n` of a list: every `n`-th item starting at `k - 1`. The same
+/// grid always splits the same way.
+pub fn shard<T: Clone>(items: &[T], k: usize, n: usize) -> Vec<T> {
+    items
+        .iter()
+        .enumerate()
+        .filter(|(i, _)| n <= 1 || i % n == k.saturating_sub(1) % n)
+        .map(|(_, x)| x.clone())
+        .collect()
+}
+
+/// Puts points in the grid's order (level, then duration, then phase), dropping duplicates.
+pub fn in_grid_order(grid: &Grid, points: &[Point]) -> Vec<Point> {
+    grid.points()
+        .into_iter()
+        .filter_map(|(l, d, p)| {
+            points
+                .iter()
+                .find(|x| x.level_pct == l && x.duration_s == d && x.phase_deg == p)
+                .cloned()
+        })
+        .collect()
+}
+
+#[cfg(test)]
+mod journal_tests {
+    use super::*;
+
+    #[test]
+    fn journal_lines_round_trip() {
+        let p = Point {
+            level_pct: 40.0,
+            duration_s: 0.123_456_789_012_345,
+            phase_deg: 90.0,
+            outcome: Outcome::Trips,
+            trip_latency_ms: Some(66.02),
+            restore_latency_ms: None,
+            failure: None,
+        };
+        assert_eq!(parse_point_line(&point_line(&p)), Some(p.clone()));
+        let f = Point {
+            outcome: Outcome::Failed,
+            failure: Some("no convergence, at t = 1 s\nsecond line".into()),
+            ..p
+        };
+        let back = parse_point_line(&point_line(&f)).unwrap();
+        assert_eq!(
+            back.failure.as_deref(),
+            Some("no convergence; at t = 1 s;second line")
+        );
+        // A half-written line is not a point.
+        assert_eq!(parse_point_line("40,0.12,90,tri"), None);
+        let b = BoundaryPoint {
+            duration_s: 0.2,
+            level_pct: Some(86.7),
+            resolution_pct: 0.25,
+        };
+        assert_eq!(
+            parse_boundary_line(&boundary_line("dip", &b)),
+            Some(("dip".into(), b))
+        );
+    }
+
+    #[test]
+    fn shards_partition_the_grid() {
+        let items: Vec<usize> = (0..10).collect();
+        let mut all: Vec<usize> = (1..=3).flat_map(|k| shard(&items, k, 3)).collect();
+        all.sort_unstable();
+        assert_eq!(all, items);
+        assert_eq!(shard(&items, 2, 3), vec![1, 4, 7]);
     }
 }
