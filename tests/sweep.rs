@@ -83,3 +83,84 @@ fn a_sweep_point_order_is_the_grid_order_whatever_the_threads() {
     let again = run_grid(&settled, &guard, &grid, DEFAULT_EDGE_S, &|| {});
     assert_eq!(points, again);
 }
+
+/// A protector whose boundary has a closed form: a near-ideal peak detector (R C = 1 s) on
+/// a 10 V peak, 50 Hz supply, a comparator against a fixed 9.5 V reference, and an ideal
+/// switch feeding a relay with a microsecond coil and no travel.
+const ANALYTIC: &str = r#"
+title = "Peak detector, fixed reference, ideal switch"
+[part.mains]
+kind = "voltage-source"
+pins = ["ac", "gnd"]
+sine = { amplitude = "10V", frequency = "50Hz" }
+[part.d1]
+kind = "diode"
+pins = ["ac", "peak"]
+saturation_current = "1u"
+emission_coefficient = 0.05
+[part.c1]
+kind = "capacitor"
+pins = ["peak", "gnd"]
+capacitance = "100u"
+[part.r1]
+kind = "resistor"
+pins = ["peak", "gnd"]
+resistance = "10k"
+[part.supply]
+kind = "voltage-source"
+pins = ["vcc", "gnd"]
+dc = "15V"
+[part.reference]
+kind = "voltage-source"
+pins = ["ref", "gnd"]
+dc = "9.5V"
+[part.u1]
+kind = "comparator"
+pins = { plus = "peak", minus = "ref", output = "decide", supply_plus = "vcc", supply_minus = "gnd" }
+[part.r_decide]
+kind = "resistor"
+pins = ["decide", "gnd"]
+resistance = "100k"
+[part.s1]
+kind = "switch"
+pins = { a = "vcc", b = "coil", control_plus = "decide", control_minus = "gnd" }
+on_voltage = "5V"
+off_voltage = "5V"
+on_resistance = "0.01"
+[part.k1]
+kind = "relay"
+pins = { coil_a = "coil", coil_b = "gnd", common = "ac", normally_open = "load" }
+coil_resistance = "100"
+coil_inductance = "1u"
+pickup_current = "50mA"
+dropout_current = "40mA"
+[part.r_load]
+kind = "resistor"
+pins = ["load", "gnd"]
+resistance = "1k"
+"#;
+
+#[test]
+fn the_boundary_of_a_peak_detector_matches_its_closed_form() {
+    // Derivation. During a long dip to residual r the ideal peak detector is recharged to
+    // r Vp at each residual crest and decays for one period T between crests:
+    // v(t) = r Vp exp(-t / RC) (RC discharge, Hayt, Kemmerly and Durbin). Its lowest value
+    // is r Vp exp(-T / RC); the comparator trips the relay when that falls below Vref. So
+    // a long dip trips if and only if r < (Vref / Vp) exp(T / RC):
+    // (9.5 / 10) exp(0.02 / 1) = 0.969190 -> 96.919% of nominal.
+    let expected = 0.95 * (0.02f64).exp() * 100.0;
+    let circuit = circuit(ANALYTIC);
+    let options = EventOptions {
+        restore_limit_s: 0.1,
+        ..EventOptions::default()
+    };
+    let settled = settle(&circuit, &options).unwrap();
+    assert!(settled.load_connected(), "the relay picks up at power-up");
+    for duration in [0.5, 1.0] {
+        let b = refine_boundary(&settled, &circuit, duration, &[0.0, 90.0], (0.0, 100.0), 0.25, DEFAULT_EDGE_S);
+        let level = b.level_pct.unwrap();
+        // Within the bisection's resolution (0.25%) plus 0.25% for the near-ideal diode's
+        // drop and leakage.
+        assert!((level - expected).abs() < 0.5, "{duration} s: {level}% vs {expected}%");
+    }
+}
