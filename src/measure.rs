@@ -45,6 +45,10 @@ pub struct Measurements {
     /// More armature transitions than one drop-out and one pick-up per disturbance, or a
     /// comparator output toggling more than twice per disturbance.
     pub chatter: bool,
+    /// The relay part of `chatter`: more armature transitions than allowed.
+    pub relay_chatter: bool,
+    /// The comparator part of `chatter`: an output toggling more than allowed.
+    pub comparator_chatter: bool,
     /// Time the load path was open between onset and the end of the run.
     pub load_interruption_ms: f64,
     /// Whether the load path is closed at the end of the run.
@@ -123,7 +127,9 @@ pub fn measure(
         .filter(|e| matches!(e.kind, EventKind::PickUp | EventKind::DropOut))
         .count();
     let allowed = 2 * window.disturbances.max(1);
-    let chatter = relay_transitions > allowed || comparator_toggles.iter().any(|&t| t > allowed);
+    let relay_chatter = relay_transitions > allowed;
+    let comparator_chatter = comparator_toggles.iter().any(|&t| t > allowed);
+    let chatter = relay_chatter || comparator_chatter;
     Measurements {
         tripped,
         trip_latency_ms: if tripped {
@@ -137,6 +143,8 @@ pub fn measure(
         bounce_ms,
         relay_transitions,
         chatter,
+        relay_chatter,
+        comparator_chatter,
         load_interruption_ms: ms(open_total),
         load_connected_at_end: closed,
     }
@@ -238,12 +246,13 @@ mod tests {
         ];
         let m = measure(&events, &window(), &[]);
         assert_eq!(m.relay_transitions, 3);
-        assert!(m.chatter);
+        assert!(m.chatter && m.relay_chatter && !m.comparator_chatter);
         // Never reconnected: open from 1.103 s to the end of the run.
         assert!((m.load_interruption_ms - 1897.0).abs() < 1e-9);
         assert_eq!(m.restore_latency_ms, None);
         // A comparator toggling five times is chatter even with a quiet relay.
-        assert!(measure(&[], &window(), &[5]).chatter);
+        let m = measure(&[], &window(), &[5]);
+        assert!(m.chatter && m.comparator_chatter && !m.relay_chatter);
     }
 
     #[test]

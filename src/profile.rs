@@ -129,6 +129,21 @@ pub struct Envelope {
 }
 
 impl Envelope {
+    /// If the level is constant around time `t` since onset, the time since onset at which
+    /// that constant stretch ends (infinity for the final level).
+    pub fn constant_until(&self, t: f64) -> Option<f64> {
+        let p = &self.points;
+        let k = p.partition_point(|&(time, _)| time <= t);
+        if k == 0 {
+            return None;
+        }
+        match p.get(k) {
+            None => Some(f64::INFINITY),
+            Some(&(end, level)) if level == p[k - 1].1 => Some(end),
+            Some(_) => None,
+        }
+    }
+
     /// The level at time `t` since onset.
     pub fn level(&self, t: f64) -> f64 {
         let p = &self.points;

@@ -125,6 +125,9 @@ pub struct EventOptions {
     pub restore_limit_s: f64,
     /// Cycles recorded before the onset. Default 2.
     pub pre_cycles: usize,
+    /// Skip whole cycles of a long constant stretch of an event once the circuit repeats
+    /// itself cycle after cycle within a fiftieth of `settle_tolerance`. Default on.
+    pub skip_steady: bool,
     /// Engine settings.
     pub settings: Settings,
     /// Extra probes to record (besides mains, rail and comparator outputs).
@@ -143,6 +146,7 @@ impl Default for EventOptions {
             settle_limit_s: 20.0,
             restore_limit_s: 10.0,
             pre_cycles: 2,
+            skip_steady: true,
             settings: Settings::default(),
             probes: Vec::new(),
         }
@@ -403,6 +407,62 @@ pub fn run_event(
 }
 
 impl Settled {
+    /// Integrates from the state to the end of the event. With `skip_steady`, once the
+    /// circuit repeats itself for 3 cycles in a row (within a fiftieth of the settling
+    /// tolerance, nothing pending) while the event's level stays constant, whole cycles of
+    /// that constant stretch are skipped (the state at a zero crossing then stands for every
+    /// later one), leaving one cycle before the stretch ends.
+    fn run_through_event(
+        &self,
+        sim: &mut Simulator,
+        state: &mut SimState,
+        trace: &mut Trace,
+        envelope: &Envelope,
+        onset_s: f64,
+        event_end_s: f64,
+    ) -> Result<(), SimError> {
+        let options = &self.options;
+        let period = 1.0 / self.frequency_hz;
+        let offset = boundary_offset(&self.mains, period);
+        if options.skip_steady {
+            let nodes = sim.network().circuit().nodes.len();
+            let tolerance = options.settle_tolerance / 50.0;
+            let mut previous = state.solution().to_vec();
+            let mut quiet = 0;
+            let mut boundary = next_boundary(offset, period, onset_s + 1e-9);
+            while boundary < event_end_s - period {
+                let mut watch = Watch {
+                    events: 0,
+                    trace: Some(&mut *trace),
+                };
+                sim.advance(state, boundary, &mut watch)?;
+                let calm = watch.events == 0 && state.pending().is_empty();
+                if calm && periodic(&previous, state.solution(), nodes, tolerance) {
+                    quiet += 1;
+                } else {
+                    quiet = 0;
+                }
+                previous.copy_from_slice(state.solution());
+                if quiet >= 3 {
+                    if let Some(end) = envelope.constant_until(state.time - onset_s) {
+                        let stretch_end = (onset_s + end).min(event_end_s);
+                        let cycles = ((stretch_end - state.time) / period).floor() - 1.0;
+                        if cycles >= 1.0 {
+                            state.skip_ahead(cycles * period);
+                            boundary += cycles * period;
+                        }
+                    }
+                }
+                boundary += period;
+            }
+        }
+        let mut watch = Watch {
+            events: 0,
+            trace: Some(trace),
+        };
+        sim.advance(state, event_end_s, &mut watch)
+    }
+
     /// Whether the load relay's contact is closed in the settled state.
     pub fn load_connected(&self) -> bool {
         self.pre_event_relay.is_some_and(|r| r.normally_open_closed)
@@ -453,13 +513,14 @@ impl Settled {
         }
         let mut trace = Trace::new(probes);
         trace.record(sim.network(), &state);
-        {
-            let mut watch = Watch {
-                events: 0,
-                trace: Some(&mut trace),
-            };
-            sim.advance(&mut state, event_end_s, &mut watch)?;
-        }
+        self.run_through_event(
+            &mut sim,
+            &mut state,
+            &mut trace,
+            &envelope,
+            onset_s,
+            event_end_s,
+        )?;
         // After the event: until the relay is back as it was and all is quiet and periodic.
         let back = |sim: &Simulator, s: &SimState| match (relay, pre_event_relay) {
             (Some(r), Some(before)) => relay_state(sim, s, r) == Some(before),

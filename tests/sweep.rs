@@ -157,10 +157,21 @@ fn the_boundary_of_a_peak_detector_matches_its_closed_form() {
     let settled = settle(&circuit, &options).unwrap();
     assert!(settled.load_connected(), "the relay picks up at power-up");
     for duration in [0.5, 1.0] {
-        let b = refine_boundary(&settled, &circuit, duration, &[0.0, 90.0], (0.0, 100.0), 0.25, DEFAULT_EDGE_S);
+        let b = refine_boundary(
+            &settled,
+            &circuit,
+            duration,
+            &[0.0, 90.0],
+            (0.0, 100.0),
+            0.25,
+            DEFAULT_EDGE_S,
+        );
         let level = b.level_pct.unwrap();
         // Within the bisection's resolution (0.25%) plus 0.25% for the near-ideal diode's
         // drop and leakage.
-        assert!((level - expected).abs() < 0.5, "{duration} s: {level}% vs {expected}%");
+        assert!(
+            (level - expected).abs() < 0.5,
+            "{duration} s: {level}% vs {expected}%"
+        );
     }
 }
