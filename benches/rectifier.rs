@@ -47,3 +47,28 @@ fn reference_guard_one_second(bencher: divan::Bencher) {
         &parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap(),
     );
 }
+
+/// A small trip map of the reference guard from one shared power-up: 4 levels x 4
+/// durations x 2 phases (32 events with their reconnections), on all cores.
+#[divan::bench(sample_count = 3)]
+fn reference_guard_small_map(bencher: divan::Bencher) {
+    use sagtrip::scenario::{settle, EventOptions};
+    use sagtrip::sweep::{log_durations, run_grid, Grid};
+    let circuit = parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+    let settled = settle(&circuit, &EventOptions::default()).unwrap();
+    let grid = Grid {
+        levels_pct: vec![0.0, 40.0, 80.0, 90.0],
+        durations_s: log_durations(0.01, 1.0, 4),
+        phases_deg: vec![0.0, 90.0],
+    };
+    bencher.bench_local(|| {
+        let points = run_grid(
+            &settled,
+            &circuit,
+            &grid,
+            sagtrip::profile::DEFAULT_EDGE_S,
+            &|| {},
+        );
+        divan::black_box(points.len())
+    });
+}
