@@ -231,7 +231,7 @@ struct RunArgs {
     plot: Option<PathBuf>,
 }
 
-#[derive(Clone, Copy, ValueEnum)]
+#[derive(Clone, Copy, PartialEq, Eq, ValueEnum)]
 enum StartArg {
     /// Start at the DC operating point with the sources at their t = 0 values.
     OperatingPoint,
@@ -450,6 +450,18 @@ fn time_option(text: &Option<String>, name: &str) -> Result<Option<f64>, String>
 
 fn run(args: &RunArgs) -> Result<String, String> {
     let mut out = String::new();
+    for (given, option) in [
+        (args.plot.is_some(), "--plot"),
+        (args.nominal.is_some(), "--nominal"),
+        (args.mains.is_some(), "--mains"),
+        (args.relay.is_some(), "--relay"),
+        (args.rail.is_some(), "--rail"),
+        (args.edge.is_some(), "--edge"),
+    ] {
+        if given {
+            return Err(format!("{option} goes with --event or --event-file"));
+        }
+    }
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let mut settings = Settings::default();
     if let Some(step) = time_option(&args.max_step, "max-step")? {
@@ -702,6 +714,18 @@ fn nominal_option(text: &str) -> Result<(f64, f64), String> {
 
 fn run_event_command(args: &RunArgs) -> Result<String, String> {
     let mut out = String::new();
+    for (given, option) in [
+        (args.duration.is_some(), "--duration"),
+        (args.events, "--events"),
+        (args.stats, "--stats"),
+        (args.start != StartArg::Rest, "--start"),
+    ] {
+        if given {
+            return Err(format!(
+                "{option} does not go with --event (the event run powers up from rest and runs until the protector has restored)"
+            ));
+        }
+    }
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let mut options = EventOptions {
         nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
