@@ -15,6 +15,7 @@
 pub mod builtin;
 pub mod circuit;
 pub mod circuit_file;
+pub mod detect;
 pub mod devices;
 pub mod engine;
 pub mod measure;
@@ -22,6 +23,7 @@ pub mod output;
 pub mod plot;
 pub mod probe;
 pub mod profile;
+pub mod recording;
 pub mod reference_curves;
 pub mod scenario;
 pub mod summary;

@@ -64,6 +64,53 @@ enum Command {
     Sweep(SweepArgs),
     /// Join the folders of a sharded sweep into one result and map.
     Merge(MergeArgs),
+    /// Find dips, swells and interruptions in a recorded waveform (IEC 61000-4-30 method).
+    Detect(DetectArgs),
+}
+
+#[derive(Args)]
+struct DetectArgs {
+    /// The recording: a .wav file, or a .csv file with a time and a voltage column.
+    recording: PathBuf,
+    /// WAV channel to read, counting from 0.
+    #[arg(long, default_value_t = 0)]
+    channel: usize,
+    /// Volts of a full-scale WAV sample (for CSV: a factor on the voltage column).
+    #[arg(long, conflicts_with = "calibrate")]
+    volts_per_full_scale: Option<String>,
+    /// Scale so that the RMS of the first whole cycles equals this, e.g. 230V.
+    #[arg(long)]
+    calibrate: Option<String>,
+    /// Declared supply, e.g. 230V/50Hz.
+    #[arg(long, default_value = "230V/50Hz")]
+    nominal: String,
+    /// Header of the CSV time column (seconds).
+    #[arg(long, default_value = "time_s")]
+    time_column: String,
+    /// Header of the CSV voltage column.
+    #[arg(long, default_value = "voltage_V")]
+    voltage_column: String,
+    /// Dip threshold, % of the declared voltage.
+    #[arg(long, default_value_t = 90.0)]
+    dip: f64,
+    /// Swell threshold, % of the declared voltage.
+    #[arg(long, default_value_t = 110.0)]
+    swell: f64,
+    /// Interruption threshold, % of the declared voltage.
+    #[arg(long, default_value_t = 10.0)]
+    interruption: f64,
+    /// Hysteresis, % of the declared voltage.
+    #[arg(long, default_value_t = 2.0)]
+    hysteresis: f64,
+    /// Smallest phase jump flagged, degrees.
+    #[arg(long, default_value_t = 10.0)]
+    phase_jump: f64,
+    /// Write the events to this CSV file.
+    #[arg(long)]
+    out: Option<PathBuf>,
+    /// Print the result as JSON.
+    #[arg(long)]
+    json: bool,
 }
 
 #[derive(Args)]
@@ -254,6 +301,7 @@ fn main() -> ExitCode {
         Command::Synth(args) => synth(&args),
         Command::Sweep(args) => sweep(&args),
         Command::Merge(args) => merge(&args),
+        Command::Detect(args) => detect_command(&args),
     };
     match result {
         Ok(text) => {
@@ -1605,4 +1653,190 @@ fn short_duration(s: f64) -> String {
     } else {
         format!("{s:.1}s")
     }
+}
+
+/// RMS over the whole cycles (rising zero crossing to rising zero crossing) of `samples`.
+fn whole_cycle_rms(samples: &[f64]) -> Option<f64> {
+    let rising: Vec<usize> = (1..samples.len())
+        .filter(|&i| samples[i - 1] < 0.0 && samples[i] >= 0.0)
+        .collect();
+    if rising.len() < 2 {
+        return None;
+    }
+    let (a, b) = (rising[0], rising[rising.len() - 1]);
+    let sum: f64 = samples[a..b].iter().map(|v| v * v).sum();
+    Some((sum / (b - a) as f64).sqrt())
+}
+
+fn detect_command(args: &DetectArgs) -> Result<String, String> {
+    use sagtrip::detect::{Detector, Thresholds};
+    use sagtrip::recording::{open, CsvColumns};
+    let mut out = String::new();
+    let (declared, frequency) = nominal_option(&args.nominal)?;
+    let columns = CsvColumns {
+        time: args.time_column.clone(),
+        voltage: args.voltage_column.clone(),
+    };
+    let mut samples = open(&args.recording, args.channel, &columns).map_err(|e| e.to_string())?;
+    let rate = samples.sample_rate;
+    let description = samples.description.clone();
+    // The scale: given, calibrated on the first whole cycles, or (CSV only) 1.
+    let lead_count = (rate / frequency * 10.0).ceil() as usize + 2;
+    let mut lead = Vec::with_capacity(lead_count);
+    for s in samples.by_ref().take(lead_count) {
+        lead.push(s.map_err(|e| e.to_string())?);
+    }
+    let (scale, how) = match (&args.volts_per_full_scale, &args.calibrate) {
+        (Some(text), _) => {
+            let v = parse_value(text, Quantity::Voltage)
+                .map_err(|e| format!("--volts-per-full-scale: {e}"))?;
+            (v, format!("{v} V per full scale (given)"))
+        }
+        (None, Some(text)) => {
+            let target =
+                parse_value(text, Quantity::Voltage).map_err(|e| format!("--calibrate: {e}"))?;
+            let rms = whole_cycle_rms(&lead).filter(|r| *r > 0.0).ok_or_else(|| {
+                format!(
+                    "--calibrate: the recording's first {} samples hold no whole cycle to calibrate on",
+                    lead.len()
+                )
+            })?;
+            (
+                target / rms,
+                format!(
+                    "{:.6} per unit (calibrated: the first whole cycles read {target} V rms)",
+                    target / rms
+                ),
+            )
+        }
+        (None, None) if !samples.full_scale_fractions => {
+            (1.0, "1 (the CSV column in volts)".to_string())
+        }
+        (None, None) => {
+            return Err(
+                "a WAV recording needs its scale: --volts-per-full-scale VOLTS or --calibrate 230V"
+                    .into(),
+            )
+        }
+    };
+    let thresholds = Thresholds {
+        dip_pct: args.dip,
+        swell_pct: args.swell,
+        interruption_pct: args.interruption,
+        hysteresis_pct: args.hysteresis,
+        phase_jump_deg: args.phase_jump,
+    };
+    let mut detector = Detector::new(rate, declared, frequency, thresholds);
+    for v in &lead {
+        detector.push(v * scale);
+    }
+    for s in samples {
+        detector.push(s.map_err(|e| e.to_string())? * scale);
+    }
+    let d = detector.finish();
+    if let Some(path) = &args.out {
+        write_atomic(path, |w| {
+            writeln!(
+                w,
+                "kind,start_s,duration_s,level_pct,ieee_1159,en_50160,phase_jump_deg,open_at_end"
+            )?;
+            for e in &d.events {
+                writeln!(
+                    w,
+                    "{},{},{},{},{},{},{},{}",
+                    serde_json::to_value(e.kind)
+                        .ok()
+                        .and_then(|v| v.as_str().map(String::from))
+                        .unwrap_or_default(),
+                    e.start_s,
+                    e.duration_s,
+                    e.level_pct,
+                    e.ieee_1159.replace(',', ";"),
+                    e.en_50160.replace(',', ";"),
+                    e.phase_jump_deg.map_or(String::new(), |j| j.to_string()),
+                    e.open_at_end
+                )?;
+            }
+            Ok(())
+        })
+        .map_err(|err| format!("cannot write {}: {err}", path.display()))?;
+    }
+    let frequencies: Vec<f64> = d.cycles.iter().map(|c| c.frequency_hz).collect();
+    let (fmin, fmax) = frequencies
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &f| {
+            (a.min(f), b.max(f))
+        });
+    let fmean = frequencies.iter().sum::<f64>() / frequencies.len().max(1) as f64;
+    if args.json {
+        let value = serde_json::json!({
+            "recording": args.recording.display().to_string(),
+            "format": description,
+            "scale": how,
+            "declared_rms_v": declared,
+            "frequency_hz": frequency,
+            "duration_s": d.duration_s,
+            "samples": d.samples,
+            "measured_frequency_hz": { "mean": fmean, "min": fmin, "max": fmax },
+            "events": d.events,
+        });
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+    say!(
+        out,
+        "{}: {description}, {:.3} s",
+        args.recording.display(),
+        d.duration_s
+    );
+    say!(out, "scale: {how}");
+    say!(
+        out,
+        "declared {declared} V / {frequency} Hz; measured frequency {fmean:.3} Hz (cycles from {fmin:.3} to {fmax:.3} Hz)"
+    );
+    if d.events.is_empty() {
+        say!(out, "\nno dips, swells or interruptions");
+    } else {
+        say!(
+            out,
+            "\n{:<13} {:>11} {:>11} {:>9}  {:<36} {:<8} {}",
+            "event",
+            "start (s)",
+            "duration",
+            "level",
+            "IEEE 1159",
+            "EN 50160",
+            "phase jump"
+        );
+        for e in &d.events {
+            say!(
+                out,
+                "{:<13} {:>11.4} {:>9.1}ms {:>8.2}%  {:<36} {:<8} {}{}",
+                serde_json::to_value(e.kind)
+                    .ok()
+                    .and_then(|v| v.as_str().map(String::from))
+                    .unwrap_or_default(),
+                e.start_s,
+                e.duration_s * 1e3,
+                e.level_pct,
+                e.ieee_1159,
+                e.en_50160,
+                e.phase_jump_deg
+                    .map_or("-".to_string(), |j| format!("{j:+.1} deg")),
+                if e.open_at_end {
+                    " (still open at the end)"
+                } else {
+                    ""
+                }
+            );
+        }
+    }
+    if let Some(path) = &args.out {
+        say!(out, "\nevents written to {}", path.display());
+    }
+    Ok(out)
 }

@@ -452,3 +452,44 @@ fn shards_merge_into_the_whole_sweep() {
     // The same points, bit for bit, as the unsharded sweep.
     assert_eq!(read(&merged), read(&whole));
 }
+
+#[test]
+fn detect_reports_the_events_of_a_synthesised_recording() {
+    let wav = temp_path("mixed.wav");
+    let out = sagtrip(&[
+        "synth",
+        "dip:40%:10cyc;gap:1s;swell:125%:20cyc;gap:500ms;interrupt:60cyc",
+        "--out",
+        wav.to_str().unwrap(),
+        "--format",
+        "int24",
+    ]);
+    assert!(out.status.success());
+    let csv = temp_path("events.csv");
+    let out = sagtrip(&[
+        "detect",
+        wav.to_str().unwrap(),
+        "--calibrate",
+        "230V",
+        "--json",
+        "--out",
+        csv.to_str().unwrap(),
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let events = v["events"].as_array().unwrap();
+    let kinds: Vec<&str> = events.iter().map(|e| e["kind"].as_str().unwrap()).collect();
+    assert_eq!(kinds, ["dip", "swell", "interruption"]);
+    assert_eq!(events[0]["en_50160"], "D2");
+    assert_eq!(events[1]["en_50160"], "S1");
+    assert_eq!(events[2]["ieee_1159"], "momentary interruption");
+    assert_eq!(std::fs::read_to_string(&csv).unwrap().lines().count(), 4);
+    // Without a scale a WAV recording is refused.
+    let out = sagtrip(&["detect", wav.to_str().unwrap()]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--volts-per-full-scale"));
+}

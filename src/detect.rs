@@ -1,0 +1,586 @@
+//! Finding dips, swells and interruptions in a recorded waveform by the IEC 61000-4-30
+//! method, one half cycle at a time, with bounded memory.
+//!
+//! - **Urms(1/2)**: the RMS over one fundamental cycle, the window starting at a fundamental
+//!   zero crossing and refreshed every half cycle. Each value is time-stamped at the end of
+//!   its window. Zero crossings are sought near where the last period predicts them; where
+//!   there are none (an interruption) the predicted instant is used.
+//! - A **dip** starts when Urms(1/2) falls below the dip threshold and ends when it is at or
+//!   above the threshold plus the hysteresis; its residual voltage is the lowest Urms(1/2)
+//!   during it. An event whose residual falls below the interruption threshold is reported
+//!   as an **interruption**. A **swell** starts above the swell threshold and ends at or below
+//!   the threshold minus the hysteresis; its magnitude is the highest Urms(1/2).
+//! - Each cycle also gives a frequency (from successive rising zero crossings) and the
+//!   fundamental's phasor (a one-cycle DFT against the declared frequency); an event whose
+//!   first whole cycle has a phasor angle differing from the last whole cycle before it by
+//!   more than `phase_jump_deg` (after the drift the frequency explains) is flagged.
+
+use std::collections::VecDeque;
+
+use num_complex::Complex64;
+use serde::Serialize;
+
+/// Detection thresholds, percent of the declared voltage.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Thresholds {
+    /// Dip threshold. Default 90% (IEC 61000-4-30 typical).
+    pub dip_pct: f64,
+    /// Swell threshold. Default 110%.
+    pub swell_pct: f64,
+    /// Interruption threshold. Default 10%.
+    pub interruption_pct: f64,
+    /// Hysteresis. Default 2%.
+    pub hysteresis_pct: f64,
+    /// Smallest phase change flagged as a jump, degrees. Default 10.
+    pub phase_jump_deg: f64,
+}
+
+impl Default for Thresholds {
+    fn default() -> Self {
+        Self {
+            dip_pct: 90.0,
+            swell_pct: 110.0,
+            interruption_pct: 10.0,
+            hysteresis_pct: 2.0,
+            phase_jump_deg: 10.0,
+        }
+    }
+}
+
+/// The kind of a detected event.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum EventKind {
+    /// Urms(1/2) below the dip threshold.
+    Dip,
+    /// A dip whose residual fell below the interruption threshold.
+    Interruption,
+    /// Urms(1/2) above the swell threshold.
+    Swell,
+}
+
+/// A detected event.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct Event {
+    /// Kind.
+    pub kind: EventKind,
+    /// Start: the end of the first Urms(1/2) window past the threshold, seconds.
+    pub start_s: f64,
+    /// From start to the end of the first window back past the threshold and hysteresis.
+    pub duration_s: f64,
+    /// Residual voltage (dips, interruptions) or magnitude (swells): the extreme Urms(1/2),
+    /// percent of the declared voltage.
+    pub level_pct: f64,
+    /// IEEE 1159 category.
+    pub ieee_1159: String,
+    /// EN 50160 table cell (`A1` .. `X5` for dips, `S1` .. `T3` for swells), or a note.
+    pub en_50160: String,
+    /// Phase jump at onset, degrees, when one above the threshold was seen.
+    pub phase_jump_deg: Option<f64>,
+    /// Whether the recording ended during the event.
+    pub open_at_end: bool,
+}
+
+/// One Urms(1/2) value.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct HalfCycle {
+    /// End of the window, seconds.
+    pub time_s: f64,
+    /// RMS over the window, volts.
+    pub rms_v: f64,
+}
+
+/// One cycle's frequency and fundamental phasor.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Cycle {
+    /// Start of the cycle (a rising zero crossing), seconds.
+    pub start_s: f64,
+    /// Frequency from this and the next rising zero crossing, hertz.
+    pub frequency_hz: f64,
+    /// RMS of the fundamental, volts.
+    pub fundamental_rms_v: f64,
+    /// Angle of the fundamental against a sine of the declared frequency at t = 0, degrees.
+    pub angle_deg: f64,
+}
+
+/// What a detection found.
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Detection {
+    /// Events in time order.
+    pub events: Vec<Event>,
+    /// Every Urms(1/2) value.
+    pub half_cycles: Vec<HalfCycle>,
+    /// Every whole cycle with zero crossings at both ends.
+    pub cycles: Vec<Cycle>,
+    /// Samples read.
+    pub samples: u64,
+    /// Duration of the recording, seconds.
+    pub duration_s: f64,
+}
+
+/// The IEEE 1159-2009 Table 2 category of an event. Durations: 0.5 to 30 cycles
+/// instantaneous, 30 cycles to 3 s momentary, 3 s to 1 min temporary, beyond sustained (lower
+/// bounds inclusive). A magnitude outside the category's range is noted.
+pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz: f64) -> String {
+    let cycles = duration_s * frequency_hz;
+    let pu = level_pct / 100.0;
+    let span = if cycles < 0.5 {
+        return "shorter than half a cycle (not categorised)".into();
+    } else if cycles < 30.0 {
+        "instantaneous"
+    } else if duration_s < 3.0 {
+        "momentary"
+    } else if duration_s < 60.0 {
+        "temporary"
+    } else {
+        "sustained"
+    };
+    let (name, range) = match kind {
+        EventKind::Interruption => {
+            let name = if span == "instantaneous" {
+                "momentary"
+            } else {
+                span
+            };
+            return format!("{name} interruption");
+        }
+        EventKind::Dip => match span {
+            "sustained" => ("undervoltage", (0.8, 0.9)),
+            s => (
+                if s == "instantaneous" {
+                    "instantaneous sag"
+                } else if s == "momentary" {
+                    "momentary sag"
+                } else {
+                    "temporary sag"
+                },
+                (0.1, 0.9),
+            ),
+        },
+        EventKind::Swell => match span {
+            "instantaneous" => ("instantaneous swell", (1.1, 1.8)),
+            "momentary" => ("momentary swell", (1.1, 1.4)),
+            "temporary" => ("temporary swell", (1.1, 1.2)),
+            _ => ("overvoltage", (1.1, 1.2)),
+        },
+    };
+    if pu < range.0 - 1e-9 || pu > range.1 + 1e-9 {
+        format!(
+            "{name} (magnitude {pu:.2} pu outside the category's {}-{} pu)",
+            range.0, range.1
+        )
+    } else {
+        name.to_string()
+    }
+}
+
+/// The EN 50160:2010 dip or swell table cell of an event.
+/// Dips: rows by residual u (A: 90 > u >= 80, B: 80 > u >= 70, C: 70 > u >= 40,
+/// D: 40 > u >= 5, X: 5 > u), columns by duration t (1: 10 ms <= t <= 200 ms,
+/// 2: <= 500 ms, 3: <= 1 s, 4: <= 5 s, 5: <= 60 s). Swells: rows S (u >= 120),
+/// T (120 > u > 110), columns 1: 10 .. 500 ms, 2: <= 5 s, 3: <= 60 s.
+pub fn en_50160(kind: EventKind, duration_s: f64, level_pct: f64) -> String {
+    if duration_s < 0.010 {
+        return "shorter than the table (10 ms)".into();
+    }
+    if duration_s > 60.0 {
+        return "longer than the table (60 s)".into();
+    }
+    match kind {
+        EventKind::Dip | EventKind::Interruption => {
+            let row = if level_pct >= 90.0 {
+                return "residual at or above 90% (not in the table)".into();
+            } else if level_pct >= 80.0 {
+                'A'
+            } else if level_pct >= 70.0 {
+                'B'
+            } else if level_pct >= 40.0 {
+                'C'
+            } else if level_pct >= 5.0 {
+                'D'
+            } else {
+                'X'
+            };
+            let column = [0.2, 0.5, 1.0, 5.0, 60.0]
+                .iter()
+                .position(|&limit| duration_s <= limit)
+                .map_or(5, |i| i + 1);
+            format!("{row}{column}")
+        }
+        EventKind::Swell => {
+            let row = if level_pct >= 120.0 {
+                'S'
+            } else if level_pct > 110.0 {
+                'T'
+            } else {
+                return "at or below 110% (not in the table)".into();
+            };
+            let column = [0.5, 5.0, 60.0]
+                .iter()
+                .position(|&limit| duration_s <= limit)
+                .map_or(3, |i| i + 1);
+            format!("{row}{column}")
+        }
+    }
+}
+
+/// An event being followed.
+struct Open {
+    kind: EventKind,
+    start_s: f64,
+    extreme: f64,
+}
+
+/// Streaming detector: feed samples in volts, then call [`Detector::finish`].
+pub struct Detector {
+    rate: f64,
+    declared_v: f64,
+    frequency_hz: f64,
+    thresholds: Thresholds,
+    /// Recent samples and their running sum of squares, with the index of the first.
+    samples: VecDeque<f64>,
+    /// Running sum of squares up to and including each kept sample.
+    squares: VecDeque<f64>,
+    /// The running sum before the first kept sample.
+    base: f64,
+    first_index: u64,
+    count: u64,
+    /// Half-cycle boundaries found so far (sample index as a real number), last two.
+    boundaries: VecDeque<f64>,
+    /// Whether the last boundary was a rising crossing.
+    last_rising: bool,
+    /// Present estimate of the half period, samples.
+    half_period: f64,
+    last_rising_at: Option<f64>,
+    open: Option<Open>,
+    result: Detection,
+}
+
+impl Detector {
+    /// A detector for a recording at `sample_rate` of a supply declared at `declared_v` rms
+    /// and `frequency_hz`.
+    pub fn new(
+        sample_rate: f64,
+        declared_v: f64,
+        frequency_hz: f64,
+        thresholds: Thresholds,
+    ) -> Self {
+        Self {
+            rate: sample_rate,
+            declared_v,
+            frequency_hz,
+            thresholds,
+            samples: VecDeque::new(),
+            squares: VecDeque::new(),
+            base: 0.0,
+            first_index: 0,
+            count: 0,
+            boundaries: VecDeque::new(),
+            last_rising: false,
+            half_period: sample_rate / frequency_hz / 2.0,
+            last_rising_at: None,
+            open: None,
+            result: Detection::default(),
+        }
+    }
+
+    fn sample(&self, index: u64) -> f64 {
+        self.samples[(index - self.first_index) as usize]
+    }
+
+    /// Sum of squares of samples with index in [a, b).
+    fn sum_squares(&self, a: u64, b: u64) -> f64 {
+        let at = |i: u64| -> f64 {
+            if i == self.first_index {
+                self.base
+            } else {
+                self.squares[(i - 1 - self.first_index) as usize]
+            }
+        };
+        at(b) - at(a)
+    }
+
+    /// Feeds one sample, volts.
+    pub fn push(&mut self, v: f64) {
+        let previous = self.squares.back().copied().unwrap_or(0.0);
+        self.samples.push_back(v);
+        self.squares.push_back(previous + v * v);
+        self.count += 1;
+        // Look for the next boundary once enough samples past its predicted place are in.
+        if self.boundaries.is_empty() {
+            self.find_first_crossing();
+        } else {
+            let last = *self.boundaries.back().unwrap_or(&0.0);
+            let predicted = last + self.half_period;
+            if (self.count as f64) > predicted + 0.25 * self.half_period + 1.0 {
+                self.next_boundary(predicted);
+            }
+        }
+        // Keep about three cycles of samples.
+        let keep = (6.0 * self.half_period) as u64 + 8;
+        let oldest_needed = self
+            .boundaries
+            .front()
+            .map_or(self.count.saturating_sub(keep), |b| {
+                (*b as u64).saturating_sub(2)
+            });
+        while self.first_index + 1 < oldest_needed.min(self.count.saturating_sub(keep)) {
+            self.samples.pop_front();
+            self.base = self.squares.pop_front().unwrap_or(self.base);
+            self.first_index += 1;
+        }
+    }
+
+    /// The first rising zero crossing in the data.
+    fn find_first_crossing(&mut self) {
+        let n = self.count;
+        if n < 2 {
+            return;
+        }
+        let (a, b) = (self.sample(n - 2), self.sample(n - 1));
+        if a < 0.0 && b >= 0.0 {
+            let x = (n - 2) as f64 + a / (a - b);
+            self.boundaries.push_back(x);
+            self.last_rising = true;
+            self.last_rising_at = Some(x);
+        }
+    }
+
+    /// Places the boundary after the last one: the zero crossing of the expected direction
+    /// nearest `predicted` (within a quarter of a half period), or `predicted` itself.
+    fn next_boundary(&mut self, predicted: f64) {
+        let rising = !self.last_rising;
+        let window = 0.25 * self.half_period;
+        let lo = (predicted - window)
+            .floor()
+            .max(self.first_index as f64 + 1.0) as u64;
+        let hi = ((predicted + window).ceil() as u64).min(self.count - 1);
+        let mut best: Option<f64> = None;
+        for i in lo..=hi {
+            let (a, b) = (self.sample(i - 1), self.sample(i));
+            let crosses = if rising {
+                a < 0.0 && b >= 0.0
+            } else {
+                a > 0.0 && b <= 0.0
+            };
+            if crosses {
+                let x = (i - 1) as f64 + a / (a - b);
+                if best.is_none_or(|y| (x - predicted).abs() < (y - predicted).abs()) {
+                    best = Some(x);
+                }
+            }
+        }
+        let boundary = best.unwrap_or(predicted);
+        let last = *self.boundaries.back().unwrap_or(&boundary);
+        if best.is_some() {
+            // Follow the measured half period slowly (noise on one crossing should not
+            // throw the prediction).
+            let measured = boundary - last;
+            if measured > 0.5 * self.half_period && measured < 1.5 * self.half_period {
+                self.half_period += 0.2 * (measured - self.half_period);
+            }
+        }
+        self.boundaries.push_back(boundary);
+        self.last_rising = rising;
+        if self.boundaries.len() > 3 {
+            self.boundaries.pop_front();
+        }
+        if self.boundaries.len() >= 3 {
+            let (start, end) = (self.boundaries[0], self.boundaries[2]);
+            self.half_cycle_value(start, end);
+            if rising && best.is_some() {
+                if let Some(previous) = self.last_rising_at {
+                    self.cycle(previous, boundary);
+                }
+            }
+        }
+        if rising && best.is_some() {
+            self.last_rising_at = Some(boundary);
+        } else if rising {
+            self.last_rising_at = None;
+        }
+    }
+
+    fn half_cycle_value(&mut self, start: f64, end: f64) {
+        let (a, b) = (start.ceil() as u64, end.ceil() as u64);
+        if b <= a || a < self.first_index {
+            return;
+        }
+        let rms = (self.sum_squares(a, b) / (b - a) as f64).sqrt();
+        let time_s = end / self.rate;
+        self.result
+            .half_cycles
+            .push(HalfCycle { time_s, rms_v: rms });
+        self.follow(time_s, 100.0 * rms / self.declared_v);
+    }
+
+    /// One whole cycle between rising crossings at sample positions `a` and `b`.
+    fn cycle(&mut self, a: f64, b: f64) {
+        let (i0, i1) = (a.ceil() as u64, b.ceil() as u64);
+        if i1 <= i0 || i0 < self.first_index {
+            return;
+        }
+        let w = 2.0 * std::f64::consts::PI * self.frequency_hz / self.rate;
+        let mut sum = Complex64::new(0.0, 0.0);
+        for i in i0..i1 {
+            sum += self.sample(i) * Complex64::from_polar(1.0, -w * i as f64);
+        }
+        let n = (i1 - i0) as f64;
+        let phasor = sum * (2.0 / n);
+        self.result.cycles.push(Cycle {
+            start_s: a / self.rate,
+            frequency_hz: self.rate / (b - a),
+            fundamental_rms_v: phasor.norm() / std::f64::consts::SQRT_2,
+            angle_deg: phasor.arg().to_degrees(),
+        });
+    }
+
+    /// The event state machine on one Urms(1/2) value (percent).
+    fn follow(&mut self, time_s: f64, u: f64) {
+        let t = &self.thresholds;
+        match &mut self.open {
+            None => {
+                if u < t.dip_pct {
+                    self.open = Some(Open {
+                        kind: EventKind::Dip,
+                        start_s: time_s,
+                        extreme: u,
+                    });
+                } else if u > t.swell_pct {
+                    self.open = Some(Open {
+                        kind: EventKind::Swell,
+                        start_s: time_s,
+                        extreme: u,
+                    });
+                }
+            }
+            Some(open) => {
+                let ended = match open.kind {
+                    EventKind::Swell => {
+                        open.extreme = open.extreme.max(u);
+                        u <= t.swell_pct - t.hysteresis_pct
+                    }
+                    _ => {
+                        open.extreme = open.extreme.min(u);
+                        u >= t.dip_pct + t.hysteresis_pct
+                    }
+                };
+                if ended {
+                    self.close(time_s, false);
+                }
+            }
+        }
+    }
+
+    fn close(&mut self, end_s: f64, open_at_end: bool) {
+        let Some(open) = self.open.take() else {
+            return;
+        };
+        let kind = if open.kind == EventKind::Dip && open.extreme < self.thresholds.interruption_pct
+        {
+            EventKind::Interruption
+        } else {
+            open.kind
+        };
+        let duration_s = end_s - open.start_s;
+        self.result.events.push(Event {
+            kind,
+            start_s: open.start_s,
+            duration_s,
+            level_pct: open.extreme,
+            ieee_1159: ieee_1159(kind, duration_s, open.extreme, self.frequency_hz),
+            en_50160: en_50160(kind, duration_s, open.extreme),
+            phase_jump_deg: None,
+            open_at_end,
+        });
+    }
+
+    /// Ends the recording: closes an open event and flags phase jumps.
+    pub fn finish(mut self) -> Detection {
+        let end = self.count as f64 / self.rate;
+        self.close(end, true);
+        self.result.samples = self.count;
+        self.result.duration_s = end;
+        // Phase jumps: compare the last whole cycle ending before the start with the first
+        // whole cycle starting after it; remove the drift the measured frequency explains.
+        let threshold = self.thresholds.phase_jump_deg;
+        let f0 = self.frequency_hz;
+        let half_window = 0.5 / f0;
+        for e in &mut self.result.events {
+            // The event's onset lies about half a window before its time stamp.
+            let onset = e.start_s - half_window;
+            let before = self
+                .result
+                .cycles
+                .iter()
+                .rev()
+                .find(|c| c.start_s + 1.0 / c.frequency_hz <= onset);
+            let after = self.result.cycles.iter().find(|c| c.start_s >= onset);
+            if let (Some(b), Some(a)) = (before, after) {
+                let drift = 360.0 * (b.frequency_hz - f0) * (a.start_s - b.start_s);
+                let mut jump = a.angle_deg - b.angle_deg - drift;
+                jump = (jump + 180.0).rem_euclid(360.0) - 180.0;
+                if jump.abs() >= threshold && a.fundamental_rms_v > 0.05 * self.declared_v {
+                    e.phase_jump_deg = Some(jump);
+                }
+            }
+        }
+        self.result
+    }
+}
+
+/// Detects events in a whole signal held in memory (tests and small recordings).
+pub fn detect(
+    samples: &[f64],
+    sample_rate: f64,
+    declared_v: f64,
+    frequency_hz: f64,
+    thresholds: Thresholds,
+) -> Detection {
+    let mut d = Detector::new(sample_rate, declared_v, frequency_hz, thresholds);
+    for &v in samples {
+        d.push(v);
+    }
+    d.finish()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn en_50160_cells() {
+        // EN 50160:2010 dip table (check-values.md).
+        assert_eq!(en_50160(EventKind::Dip, 0.1, 85.0), "A1");
+        assert_eq!(en_50160(EventKind::Dip, 0.3, 75.0), "B2");
+        assert_eq!(en_50160(EventKind::Dip, 0.7, 50.0), "C3");
+        assert_eq!(en_50160(EventKind::Dip, 2.0, 20.0), "D4");
+        assert_eq!(en_50160(EventKind::Interruption, 10.0, 1.0), "X5");
+        assert_eq!(en_50160(EventKind::Swell, 0.2, 125.0), "S1");
+        assert_eq!(en_50160(EventKind::Swell, 3.0, 115.0), "T2");
+    }
+
+    #[test]
+    fn ieee_1159_categories() {
+        // IEEE 1159-2009 Table 2 (check-values.md).
+        assert_eq!(
+            ieee_1159(EventKind::Dip, 0.2, 40.0, 50.0),
+            "instantaneous sag"
+        );
+        assert_eq!(ieee_1159(EventKind::Dip, 1.0, 40.0, 50.0), "momentary sag");
+        assert_eq!(ieee_1159(EventKind::Dip, 10.0, 40.0, 50.0), "temporary sag");
+        assert_eq!(
+            ieee_1159(EventKind::Interruption, 1.0, 2.0, 50.0),
+            "momentary interruption"
+        );
+        assert_eq!(
+            ieee_1159(EventKind::Interruption, 10.0, 2.0, 50.0),
+            "temporary interruption"
+        );
+        assert_eq!(
+            ieee_1159(EventKind::Swell, 0.2, 130.0, 50.0),
+            "instantaneous swell"
+        );
+        assert!(ieee_1159(EventKind::Swell, 1.0, 150.0, 50.0).contains("outside"));
+    }
+}
