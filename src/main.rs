@@ -66,10 +66,13 @@ enum Command {
     Merge(MergeArgs),
     /// Find dips, swells and interruptions in a recorded waveform (IEC 61000-4-30 method).
     Detect(DetectArgs),
+    /// Drive the protector with a recorded waveform and report how it answered each event.
+    Replay(ReplayArgs),
 }
 
+/// Where a recording comes from and how to scale it.
 #[derive(Args)]
-struct DetectArgs {
+struct RecordingInput {
     /// The recording: a .wav file, or a .csv file with a time and a voltage column.
     recording: PathBuf,
     /// WAV channel to read, counting from 0.
@@ -81,9 +84,6 @@ struct DetectArgs {
     /// Scale so that the RMS of the first whole cycles equals this, e.g. 230V.
     #[arg(long)]
     calibrate: Option<String>,
-    /// Declared supply, e.g. 230V/50Hz.
-    #[arg(long, default_value = "230V/50Hz")]
-    nominal: String,
     /// Header of the CSV time column (seconds).
     #[arg(long, default_value = "time_s")]
     time_column: String,
@@ -105,9 +105,36 @@ struct DetectArgs {
     /// Smallest phase jump flagged, degrees.
     #[arg(long, default_value_t = 10.0)]
     phase_jump: f64,
+}
+
+#[derive(Args)]
+struct DetectArgs {
+    #[command(flatten)]
+    input: RecordingInput,
+    /// Declared supply, e.g. 230V/50Hz.
+    #[arg(long, default_value = "230V/50Hz")]
+    nominal: String,
     /// Write the events to this CSV file.
     #[arg(long)]
     out: Option<PathBuf>,
+    /// Print the result as JSON.
+    #[arg(long)]
+    json: bool,
+}
+
+#[derive(Args)]
+struct ReplayArgs {
+    #[command(flatten)]
+    input: RecordingInput,
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    circuit: Option<PathBuf>,
+    /// Declared supply, e.g. 230V/50Hz (default: the circuit's mains source).
+    #[arg(long)]
+    nominal: Option<String>,
+    /// Write the replayed waveforms (mains, rail, comparator outputs) to this CSV file.
+    #[arg(long)]
+    trace: Option<PathBuf>,
     /// Print the result as JSON.
     #[arg(long)]
     json: bool,
@@ -302,6 +329,7 @@ fn main() -> ExitCode {
         Command::Sweep(args) => sweep(&args),
         Command::Merge(args) => merge(&args),
         Command::Detect(args) => detect_command(&args),
+        Command::Replay(args) => replay_command(&args),
     };
     match result {
         Ok(text) => {
@@ -1668,25 +1696,44 @@ fn whole_cycle_rms(samples: &[f64]) -> Option<f64> {
     Some((sum / (b - a) as f64).sqrt())
 }
 
-fn detect_command(args: &DetectArgs) -> Result<String, String> {
-    use sagtrip::detect::{Detector, Thresholds};
+/// An opened, scaled recording: its first samples read ahead for calibration.
+struct Scaled {
+    lead: Vec<f64>,
+    rest: sagtrip::recording::Samples,
+    scale: f64,
+    how: String,
+    rate: f64,
+    description: String,
+}
+
+impl Scaled {
+    /// Every sample in volts.
+    fn volts(self) -> impl Iterator<Item = Result<f64, String>> {
+        let scale = self.scale;
+        self.lead.into_iter().map(move |v| Ok(v * scale)).chain(
+            self.rest
+                .map(move |s| s.map(|v| v * scale).map_err(|e| e.to_string())),
+        )
+    }
+}
+
+/// Opens a recording and works out its scale (given, calibrated on the first whole cycles
+/// against `declared` volts, or 1 for a CSV column in volts).
+fn open_scaled(input: &RecordingInput, frequency: f64) -> Result<Scaled, String> {
     use sagtrip::recording::{open, CsvColumns};
-    let mut out = String::new();
-    let (declared, frequency) = nominal_option(&args.nominal)?;
     let columns = CsvColumns {
-        time: args.time_column.clone(),
-        voltage: args.voltage_column.clone(),
+        time: input.time_column.clone(),
+        voltage: input.voltage_column.clone(),
     };
-    let mut samples = open(&args.recording, args.channel, &columns).map_err(|e| e.to_string())?;
+    let mut samples = open(&input.recording, input.channel, &columns).map_err(|e| e.to_string())?;
     let rate = samples.sample_rate;
     let description = samples.description.clone();
-    // The scale: given, calibrated on the first whole cycles, or (CSV only) 1.
     let lead_count = (rate / frequency * 10.0).ceil() as usize + 2;
     let mut lead = Vec::with_capacity(lead_count);
     for s in samples.by_ref().take(lead_count) {
         lead.push(s.map_err(|e| e.to_string())?);
     }
-    let (scale, how) = match (&args.volts_per_full_scale, &args.calibrate) {
+    let (scale, how) = match (&input.volts_per_full_scale, &input.calibrate) {
         (Some(text), _) => {
             let v = parse_value(text, Quantity::Voltage)
                 .map_err(|e| format!("--volts-per-full-scale: {e}"))?;
@@ -1719,19 +1766,35 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
             )
         }
     };
-    let thresholds = Thresholds {
-        dip_pct: args.dip,
-        swell_pct: args.swell,
-        interruption_pct: args.interruption,
-        hysteresis_pct: args.hysteresis,
-        phase_jump_deg: args.phase_jump,
-    };
-    let mut detector = Detector::new(rate, declared, frequency, thresholds);
-    for v in &lead {
-        detector.push(v * scale);
+    Ok(Scaled {
+        lead,
+        rest: samples,
+        scale,
+        how,
+        rate,
+        description,
+    })
+}
+
+fn thresholds_of(input: &RecordingInput) -> sagtrip::detect::Thresholds {
+    sagtrip::detect::Thresholds {
+        dip_pct: input.dip,
+        swell_pct: input.swell,
+        interruption_pct: input.interruption,
+        hysteresis_pct: input.hysteresis,
+        phase_jump_deg: input.phase_jump,
     }
-    for s in samples {
-        detector.push(s.map_err(|e| e.to_string())? * scale);
+}
+
+fn detect_command(args: &DetectArgs) -> Result<String, String> {
+    use sagtrip::detect::Detector;
+    let mut out = String::new();
+    let (declared, frequency) = nominal_option(&args.nominal)?;
+    let scaled = open_scaled(&args.input, frequency)?;
+    let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
+    let mut detector = Detector::new(rate, declared, frequency, thresholds_of(&args.input));
+    for v in scaled.volts() {
+        detector.push(v?);
     }
     let d = detector.finish();
     if let Some(path) = &args.out {
@@ -1770,7 +1833,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
     let fmean = frequencies.iter().sum::<f64>() / frequencies.len().max(1) as f64;
     if args.json {
         let value = serde_json::json!({
-            "recording": args.recording.display().to_string(),
+            "recording": args.input.recording.display().to_string(),
             "format": description,
             "scale": how,
             "declared_rms_v": declared,
@@ -1790,7 +1853,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
     say!(
         out,
         "{}: {description}, {:.3} s",
-        args.recording.display(),
+        args.input.recording.display(),
         d.duration_s
     );
     say!(out, "scale: {how}");
@@ -1838,5 +1901,136 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
     if let Some(path) = &args.out {
         say!(out, "\nevents written to {}", path.display());
     }
+    Ok(out)
+}
+
+fn replay_command(args: &ReplayArgs) -> Result<String, String> {
+    let mut out = String::new();
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let options = EventOptions {
+        nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
+        ..EventOptions::default()
+    };
+    let started = Instant::now();
+    let settled =
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+    let scaled = open_scaled(&args.input, settled.frequency_hz)?;
+    let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
+    let probes = args.trace.as_ref().map(|_| {
+        let mut p = vec![Probe::Voltage {
+            node: circuit.node("line").unwrap_or(1),
+        }];
+        p.extend(sagtrip::plot::plot_probes(&circuit));
+        p.dedup();
+        p
+    });
+    let replay = settled
+        .replay(scaled.volts(), rate, thresholds_of(&args.input), probes)
+        .map_err(|e| format!("{}: {e}", args.input.recording.display()))?;
+    let wall = started.elapsed().as_secs_f64();
+    if let (Some(path), Some(trace)) = (&args.trace, &replay.trace) {
+        write_atomic(path, |w| trace.write_csv(&circuit, w))
+            .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
+    }
+    let tripped = replay.responses.iter().filter(|r| r.tripped).count();
+    if args.json {
+        let value = serde_json::json!({
+            "circuit": name,
+            "recording": args.input.recording.display().to_string(),
+            "format": description,
+            "scale": how,
+            "joined_at_s": replay.joined_at_s,
+            "duration_s": replay.duration_s,
+            "events": replay.responses,
+            "nuisance_trips": replay.nuisance_trips,
+            "trips": replay.trips,
+            "summary": {
+                "events": replay.responses.len(),
+                "events_tripped": tripped,
+                "events_ridden_through": replay.responses.len() - tripped,
+                "nuisance_trips": replay.nuisance_trips.len(),
+            },
+            "min_rail_v": replay.min_rail_v,
+            "stats": replay.stats,
+            "wall_time_s": wall,
+        });
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+    say!(out, "{name}: {}", circuit.title);
+    say!(
+        out,
+        "{}: {description}, {:.3} s; scale {how}; joined at {:.4} s",
+        args.input.recording.display(),
+        replay.duration_s,
+        replay.joined_at_s
+    );
+    if replay.responses.is_empty() {
+        say!(out, "\nno dips, swells or interruptions detected");
+    } else {
+        say!(
+            out,
+            "\n{:<13} {:>10} {:>10} {:>8}  {:<8} {:>12} {:>12}",
+            "event",
+            "start (s)",
+            "duration",
+            "level",
+            "tripped",
+            "trip after",
+            "reconnected"
+        );
+        for r in &replay.responses {
+            let e = &r.event;
+            say!(
+                out,
+                "{:<13} {:>10.4} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
+                serde_json::to_value(e.kind)
+                    .ok()
+                    .and_then(|v| v.as_str().map(String::from))
+                    .unwrap_or_default(),
+                e.start_s,
+                e.duration_s * 1e3,
+                e.level_pct,
+                if r.tripped { "yes" } else { "no" },
+                r.trip_latency_ms
+                    .map_or("-".into(), |v| format!("{v:.1} ms")),
+                r.restore_latency_ms
+                    .map_or("-".into(), |v| format!("{v:.1} ms")),
+            );
+        }
+    }
+    for t in &replay.nuisance_trips {
+        say!(
+            out,
+            "NUISANCE TRIP at {:.4} s with no detected event",
+            t.time_s
+        );
+    }
+    say!(
+        out,
+        "\n{} events: {} tripped, {} ridden through; {} nuisance trip{}; lowest rail {}",
+        replay.responses.len(),
+        tripped,
+        replay.responses.len() - tripped,
+        replay.nuisance_trips.len(),
+        if replay.nuisance_trips.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
+        replay
+            .min_rail_v
+            .map_or("-".into(), |v| format!("{v:.3} V"))
+    );
+    say!(
+        out,
+        "(trip and reconnection times count from the event's detected start and end)\n{:.2} s wall, {:.0}x real time",
+        wall,
+        replay.duration_s / wall.max(1e-9)
+    );
     Ok(out)
 }

@@ -38,6 +38,16 @@ pub enum Waveform {
         /// The level over time since onset.
         envelope: Envelope,
     },
+    /// Recorded samples, evenly spaced, linearly interpolated; the first value holds
+    /// before them and the last after them.
+    Samples {
+        /// Time of the first sample, seconds.
+        start_s: f64,
+        /// Time between samples, seconds.
+        interval_s: f64,
+        /// The values.
+        values: std::sync::Arc<[f64]>,
+    },
     /// `before` until `at_s`, then `after`: an ideal step with a breakpoint at `at_s`.
     Step {
         /// Value before the step.
@@ -76,6 +86,22 @@ impl Waveform {
                 envelope.level(t - onset_s)
                     * amplitude
                     * (2.0 * PI * frequency_hz * t + phase_deg.to_radians()).sin()
+            }
+            Waveform::Samples {
+                start_s,
+                interval_s,
+                ref values,
+            } => {
+                let x = (t - start_s) / interval_s;
+                if x <= 0.0 || values.len() < 2 {
+                    return values.first().copied().unwrap_or(0.0);
+                }
+                let k = x.floor() as usize;
+                if k + 1 >= values.len() {
+                    return values[values.len() - 1];
+                }
+                let w = x - k as f64;
+                values[k] * (1.0 - w) + values[k + 1] * w
             }
             Waveform::Step {
                 before,
@@ -170,6 +196,15 @@ impl std::fmt::Display for Waveform {
             } => {
                 write!(f, "step {before} to {after} at {at_s} s")
             }
+            Waveform::Samples {
+                start_s,
+                interval_s,
+                ref values,
+            } => write!(
+                f,
+                "{} recorded samples every {interval_s} s from {start_s} s",
+                values.len()
+            ),
             Waveform::Disturbed {
                 amplitude,
                 frequency_hz,

@@ -493,3 +493,35 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("--volts-per-full-scale"));
 }
+
+#[test]
+fn replay_reports_each_event_and_the_nuisance_trips() {
+    let wav = temp_path("replay.wav");
+    let out = sagtrip(&[
+        "synth",
+        "dip:40%:10cyc;gap:1s;dip:95%:20cyc",
+        "--out",
+        wav.to_str().unwrap(),
+        "--tail",
+        "40cyc",
+    ]);
+    assert!(out.status.success());
+    let out = sagtrip(&[
+        "replay",
+        wav.to_str().unwrap(),
+        "--calibrate",
+        "230V",
+        "--json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    // The 40% dip is detected and trips the guard; the 95% one is not an event at all.
+    assert_eq!(v["summary"]["events"], 1);
+    assert_eq!(v["summary"]["events_tripped"], 1);
+    assert_eq!(v["summary"]["nuisance_trips"], 0);
+    assert!(v["events"][0]["trip_latency_ms"].as_f64().unwrap() > 30.0);
+}

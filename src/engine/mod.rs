@@ -402,6 +402,11 @@ impl Simulator {
         &self.settings
     }
 
+    /// Changes the largest step (for example to follow a recording's sample spacing).
+    pub fn set_max_step(&mut self, max_step_s: f64) {
+        self.settings.max_step_s = max_step_s;
+    }
+
     fn empty_state(&self) -> SimState {
         let dim = self.network.dim();
         SimState {
