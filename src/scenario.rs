@@ -710,7 +710,6 @@ impl Settled {
         // Sim time minus recording time, once joined; index of buffer[0].
         let mut shift: Option<f64> = None;
         let mut first_index = 0usize;
-        let mut index = 0usize;
         let flush = |sim: &mut Simulator,
                      state: &mut SimState,
                      watch: &mut ReplayWatch<'_>,
@@ -734,7 +733,7 @@ impl Settled {
             }
             Ok(())
         };
-        for sample in samples {
+        for (index, sample) in samples.enumerate() {
             let v = sample.map_err(|e| e.to_string())?;
             detector.push(v);
             match shift {
@@ -761,7 +760,6 @@ impl Settled {
                 }
             }
             previous = Some(v);
-            index += 1;
         }
         let shift = shift.ok_or("the recording has no rising zero crossing to join")?;
         if buffer.len() >= 2 {
