@@ -232,6 +232,12 @@ struct SynthArgs {
     /// Rise and fall time of abrupt changes (default 5us).
     #[arg(long)]
     edge: Option<String>,
+    /// Harmonics to add, ORDER:PERCENT of the fundamental, comma-separated (e.g. 3:5,5:3).
+    #[arg(long)]
+    harmonics: Option<String>,
+    /// Uniform noise to add, percent of the nominal peak (reproducible: fixed seed).
+    #[arg(long, default_value_t = 0.0)]
+    noise: f64,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -1034,6 +1040,27 @@ fn synth(args: &SynthArgs) -> Result<String, String> {
             FormatArg::Int16 => SampleFormat::Int16,
             FormatArg::Int24 => SampleFormat::Int24,
             FormatArg::Float32 => SampleFormat::Float32,
+        },
+        harmonics: match &args.harmonics {
+            None => Vec::new(),
+            Some(text) => text
+                .split(',')
+                .map(|h| {
+                    let (order, pct) = h.split_once(':')?;
+                    Some((
+                        order.trim().parse::<u32>().ok()?,
+                        pct.trim().trim_end_matches('%').parse::<f64>().ok()? / 100.0,
+                    ))
+                })
+                .collect::<Option<Vec<_>>>()
+                .ok_or_else(|| {
+                    format!("--harmonics {text}: expected ORDER:PERCENT pairs, e.g. 3:5,5:3")
+                })?,
+        },
+        noise: if args.noise >= 0.0 {
+            args.noise / 100.0
+        } else {
+            return Err("--noise must not be negative".into());
         },
     };
     let volts = samples(&profile, &options);

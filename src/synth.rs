@@ -37,6 +37,10 @@ pub struct SynthOptions {
     pub volts_per_full_scale: f64,
     /// Sample encoding.
     pub format: SampleFormat,
+    /// Harmonics added on top: (order, amplitude as a fraction of the fundamental's).
+    pub harmonics: Vec<(u32, f64)>,
+    /// Peak of the added uniform noise, fraction of the nominal peak.
+    pub noise: f64,
 }
 
 impl SynthOptions {
@@ -73,10 +77,24 @@ pub fn samples(profile: &Profile, options: &SynthOptions) -> Vec<f64> {
     let count = (total * f64::from(options.sample_rate)).ceil() as usize;
     let amplitude = options.rms_v * std::f64::consts::SQRT_2;
     let w = 2.0 * std::f64::consts::PI * options.frequency_hz;
+    // A fixed-seed generator: the same options always give the same file.
+    let mut seed: u64 = 0x5a67_7472_6970;
     (0..count)
         .map(|k| {
             let t = k as f64 / f64::from(options.sample_rate);
-            envelope.level(t - onset) * amplitude * (w * t).sin()
+            let level = envelope.level(t - onset) * amplitude;
+            let mut v = level * (w * t).sin();
+            for &(order, fraction) in &options.harmonics {
+                v += fraction * level * (f64::from(order) * w * t).sin();
+            }
+            if options.noise > 0.0 {
+                seed = seed
+                    .wrapping_mul(6_364_136_223_846_793_005)
+                    .wrapping_add(1_442_695_040_888_963_407);
+                let u = (seed >> 11) as f64 / (1u64 << 53) as f64;
+                v += (2.0 * u - 1.0) * options.noise * amplitude;
+            }
+            v
         })
         .collect()
 }

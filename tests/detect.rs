@@ -18,6 +18,8 @@ fn synthetic(spec: &str, lead_s: f64, harmonics: bool) -> Vec<f64> {
         tail_s: 1.0,
         volts_per_full_scale: 1000.0,
         format: SampleFormat::Float32,
+        harmonics: Vec::new(),
+        noise: 0.0,
     };
     let mut v = samples(&profile, &options);
     if harmonics {
@@ -156,6 +158,8 @@ fn wav_round_trip(volts: &[f64], format: SampleFormat, name: &str) -> Vec<f64> {
         tail_s: 0.0,
         volts_per_full_scale: 650.0,
         format,
+        harmonics: Vec::new(),
+        noise: 0.0,
     };
     let bytes = sagtrip::synth::wav_bytes(volts, &options).unwrap();
     let path =
@@ -252,4 +256,34 @@ fn bad_recordings_are_refused_with_their_place() {
         .unwrap_err()
         .to_string()
         .contains("unsupported"));
+}
+
+#[test]
+fn the_example_recordings_hold_the_events_they_are_made_of() {
+    // waveforms/README.md lists what each example holds; make.sh builds them from profiles.
+    let expected: &[(&str, &[EventKind])] = &[
+        ("motor-start-sag.wav", &[EventKind::Dip]),
+        ("generator-swell.wav", &[EventKind::Swell]),
+        (
+            "recloser.wav",
+            &[EventKind::Interruption, EventKind::Interruption],
+        ),
+        (
+            "noisy-minute.wav",
+            &[EventKind::Dip, EventKind::Swell, EventKind::Interruption],
+        ),
+    ];
+    for (file, kinds) in expected {
+        let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+            .join("waveforms")
+            .join(file);
+        let samples = sagtrip::recording::open(&path, 0, &Default::default()).unwrap();
+        let rate = samples.sample_rate;
+        let mut d = sagtrip::detect::Detector::new(rate, 230.0, 50.0, Thresholds::default());
+        for s in samples {
+            d.push(s.unwrap() * 650.538);
+        }
+        let found: Vec<EventKind> = d.finish().events.iter().map(|e| e.kind).collect();
+        assert_eq!(&found, kinds, "{file}");
+    }
 }

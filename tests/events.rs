@@ -254,6 +254,8 @@ fn synthesised_wav_files_hold_the_profile_at_the_stated_scale() {
             tail_s: 0.2,
             volts_per_full_scale: 650.0,
             format,
+            harmonics: Vec::new(),
+            noise: 0.0,
         };
         let volts = samples(&profile, &options);
         let bytes = wav_bytes(&volts, &options).unwrap();
@@ -293,6 +295,8 @@ fn synthesised_wav_files_hold_the_profile_at_the_stated_scale() {
         tail_s: 0.1,
         volts_per_full_scale: 300.0,
         format: SampleFormat::Int16,
+        harmonics: Vec::new(),
+        noise: 0.0,
     };
     assert!(wav_bytes(&samples(&profile, &options), &options).is_err());
 }
@@ -347,6 +351,8 @@ fn replaying_a_synthesised_recording_matches_the_event_run() {
         tail_s: 1.2,
         volts_per_full_scale: 650.0,
         format: SampleFormat::Float32,
+        harmonics: Vec::new(),
+        noise: 0.0,
     };
     let volts = samples(&profile, &options);
     let settled = sagtrip::scenario::settle(&guard, &EventOptions::default()).unwrap();
