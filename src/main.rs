@@ -117,6 +117,10 @@ struct DetectArgs {
     /// Write the events to this CSV file.
     #[arg(long)]
     out: Option<PathBuf>,
+    /// Draw Urms(1/2) with the events, and the events on the ITI curve, into FILE.svg or
+    /// FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
     /// Print the result as JSON.
     #[arg(long)]
     json: bool,
@@ -135,6 +139,10 @@ struct ReplayArgs {
     /// Write the replayed waveforms (mains, rail, comparator outputs) to this CSV file.
     #[arg(long)]
     trace: Option<PathBuf>,
+    /// Draw Urms(1/2) with the events and the trips, and the events on the ITI curve, into
+    /// FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
     /// Print the result as JSON.
     #[arg(long)]
     json: bool,
@@ -1819,11 +1827,27 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
     let (declared, frequency) = nominal_option(&args.nominal)?;
     let scaled = open_scaled(&args.input, frequency)?;
     let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
-    let mut detector = Detector::new(rate, declared, frequency, thresholds_of(&args.input));
+    let thresholds = thresholds_of(&args.input);
+    let mut detector = Detector::new(rate, declared, frequency, thresholds.clone());
     for v in scaled.volts() {
         detector.push(v?);
     }
     let d = detector.finish();
+    if let Some(path) = &args.plot {
+        let plot = sagtrip::plot::RecordingPlot {
+            title: format!("{}: events", args.input.recording.display()),
+            detection: &d,
+            declared_v: declared,
+            thresholds: &thresholds,
+            trips: Vec::new(),
+            tripped: None,
+        };
+        write_plot(
+            path,
+            |p| sagtrip::plot::recording_png(&plot, p),
+            || sagtrip::plot::recording_svg(&plot),
+        )?;
+    }
     if let Some(path) = &args.out {
         write_atomic(path, |w| {
             writeln!(
@@ -1951,9 +1975,29 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
         p.dedup();
         p
     });
+    let thresholds = thresholds_of(&args.input);
     let replay = settled
-        .replay(scaled.volts(), rate, thresholds_of(&args.input), probes)
+        .replay(scaled.volts(), rate, thresholds.clone(), probes)
         .map_err(|e| format!("{}: {e}", args.input.recording.display()))?;
+    if let Some(path) = &args.plot {
+        let plot = sagtrip::plot::RecordingPlot {
+            title: format!(
+                "{} through {}",
+                args.input.recording.display(),
+                circuit.title
+            ),
+            detection: &replay.detection,
+            declared_v: settled.rms,
+            thresholds: &thresholds,
+            trips: replay.trips.iter().map(|t| t.time_s).collect(),
+            tripped: Some(replay.responses.iter().map(|r| r.tripped).collect()),
+        };
+        write_plot(
+            path,
+            |p| sagtrip::plot::recording_png(&plot, p),
+            || sagtrip::plot::recording_svg(&plot),
+        )?;
+    }
     let wall = started.elapsed().as_secs_f64();
     if let (Some(path), Some(trace)) = (&args.trace, &replay.trace) {
         write_atomic(path, |w| trace.write_csv(&circuit, w))

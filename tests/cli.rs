@@ -466,6 +466,7 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
     ]);
     assert!(out.status.success());
     let csv = temp_path("events.csv");
+    let png = temp_path("events.png");
     let out = sagtrip(&[
         "detect",
         wav.to_str().unwrap(),
@@ -474,6 +475,8 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
         "--json",
         "--out",
         csv.to_str().unwrap(),
+        "--plot",
+        png.to_str().unwrap(),
     ]);
     assert!(
         out.status.success(),
@@ -488,6 +491,8 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
     assert_eq!(events[1]["en_50160"], "S1");
     assert_eq!(events[2]["ieee_1159"], "momentary interruption");
     assert_eq!(std::fs::read_to_string(&csv).unwrap().lines().count(), 4);
+    let bytes = std::fs::read(&png).unwrap();
+    assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
     // Without a scale a WAV recording is refused.
     let out = sagtrip(&["detect", wav.to_str().unwrap()]);
     assert!(!out.status.success());
@@ -506,12 +511,15 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
         "40cyc",
     ]);
     assert!(out.status.success());
+    let svg = temp_path("replay.svg");
     let out = sagtrip(&[
         "replay",
         wav.to_str().unwrap(),
         "--calibrate",
         "230V",
         "--json",
+        "--plot",
+        svg.to_str().unwrap(),
     ]);
     assert!(
         out.status.success(),
@@ -524,4 +532,14 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
     assert_eq!(v["summary"]["events_tripped"], 1);
     assert_eq!(v["summary"]["nuisance_trips"], 0);
     assert!(v["events"][0]["trip_latency_ms"].as_f64().unwrap() > 30.0);
+    let text = std::fs::read_to_string(&svg).unwrap();
+    for label in [
+        "Urms(1/2)",
+        "dip threshold 90%",
+        "protector trips",
+        "event, protector tripped",
+        "time into the recording (s)",
+    ] {
+        assert!(text.contains(label), "{label}");
+    }
 }
