@@ -1976,9 +1976,30 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
         p
     });
     let thresholds = thresholds_of(&args.input);
+    // A progress bar on the terminal (indicatif draws nothing when stderr is not one), in
+    // seconds of recording; its length is known for WAV files, whose header gives it.
+    let total_s = scaled.rest.expected_len.map(|n| n as f64 / rate);
+    let bar = match total_s {
+        Some(total) if !args.json => indicatif::ProgressBar::new(total.ceil() as u64),
+        Some(_) => indicatif::ProgressBar::hidden(),
+        None if !args.json => indicatif::ProgressBar::no_length(),
+        None => indicatif::ProgressBar::hidden(),
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(if total_s.is_some() {
+            "{bar:40} {pos}/{len} s of recording, {elapsed} elapsed, about {eta} left"
+        } else {
+            "{spinner} {pos} s of recording, {elapsed} elapsed"
+        })
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
     let replay = settled
-        .replay(scaled.volts(), rate, thresholds.clone(), probes)
-        .map_err(|e| format!("{}: {e}", args.input.recording.display()))?;
+        .replay_with_progress(scaled.volts(), rate, thresholds.clone(), probes, &mut |s| {
+            bar.set_position(s as u64)
+        })
+        .map_err(|e| format!("{}: {e}", args.input.recording.display()));
+    bar.finish_and_clear();
+    let replay = replay?;
     if let Some(path) = &args.plot {
         let plot = sagtrip::plot::RecordingPlot {
             title: format!(

@@ -70,6 +70,8 @@ pub struct Samples {
     pub description: String,
     /// Whether the values are fractions of full scale (WAV) rather than volts (CSV).
     pub full_scale_fractions: bool,
+    /// How many samples the file holds, where its header says (WAV); for progress reports.
+    pub expected_len: Option<u64>,
     inner: Box<dyn Iterator<Item = Result<f64, RecordingError>> + Send>,
 }
 
@@ -123,6 +125,7 @@ fn open_wav(path: &Path, channel: usize) -> Result<Samples, RecordingError> {
     if reader.len() == 0 {
         return Err(format_error("the recording holds no samples".into()));
     }
+    let frames = u64::from(reader.duration());
     let description = format!(
         "WAV, {} Hz, {}-bit {}, {} channel{}",
         spec.sample_rate,
@@ -185,6 +188,7 @@ fn open_wav(path: &Path, channel: usize) -> Result<Samples, RecordingError> {
         sample_rate: rate,
         description,
         full_scale_fractions: true,
+        expected_len: Some(frames),
         inner,
     })
 }
@@ -349,6 +353,7 @@ fn open_csv(path: &Path, columns: &CsvColumns) -> Result<Samples, RecordingError
         sample_rate: rate,
         description: format!("CSV, {rate:.0} samples per second"),
         full_scale_fractions: false,
+        expected_len: None,
         inner: Box::new(first_values.into_iter().map(Ok).chain(rest)),
     })
 }

@@ -682,6 +682,19 @@ impl Settled {
         thresholds: crate::detect::Thresholds,
         probes: Option<Vec<Probe>>,
     ) -> Result<Replay, String> {
+        self.replay_with_progress(samples, rate, thresholds, probes, &mut |_| {})
+    }
+
+    /// As [`Settled::replay`], calling `progress` with the seconds of recording simulated so
+    /// far after each one-second chunk (for a progress display on long recordings).
+    pub fn replay_with_progress<E: std::fmt::Display>(
+        &self,
+        samples: impl Iterator<Item = Result<f64, E>>,
+        rate: f64,
+        thresholds: crate::detect::Thresholds,
+        probes: Option<Vec<Probe>>,
+        progress: &mut dyn FnMut(f64),
+    ) -> Result<Replay, String> {
         let mut sim = self.sim.clone();
         let mut state = self.state.clone();
         let before = state.stats;
@@ -752,6 +765,7 @@ impl Settled {
                     buffer.push(v);
                     if buffer.len() > chunk {
                         flush(&mut sim, &mut state, &mut watch, &buffer, first_index, s)?;
+                        progress((index + 1) as f64 / rate);
                         let last = buffer[buffer.len() - 1];
                         first_index += buffer.len() - 1;
                         buffer.clear();
