@@ -717,6 +717,10 @@ impl Settled {
             min_rail: f64::INFINITY,
             trace: trace.as_mut(),
         };
+        // The settled sine carries on up to the join, so the supply never pauses: the
+        // recording's samples take over only from that rising zero crossing.
+        sim.advance(&mut state, t_sim0, &mut watch)
+            .map_err(|e| e.to_string())?;
         let chunk = (rate as usize).max(16);
         let mut buffer: Vec<f64> = Vec::with_capacity(chunk + 1);
         let mut previous: Option<f64> = None;
