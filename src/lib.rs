@@ -29,5 +29,6 @@ pub mod scenario;
 pub mod summary;
 pub mod sweep;
 pub mod synth;
+pub mod thresholds;
 pub mod units;
 pub mod waveform;

@@ -543,3 +543,40 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
         assert!(text.contains(label), "{label}");
     }
 }
+
+#[test]
+fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
+    let out = sagtrip(&[
+        "thresholds",
+        "--resolution",
+        "1V",
+        "--hold",
+        "1.5s",
+        "--ramp",
+        "3s",
+        "--json",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    for side in ["under", "over"] {
+        for field in ["trip", "reset"] {
+            let volts = v[side][field]["volts"].as_f64().unwrap();
+            let (lo, hi) = (
+                v[side][field]["bracket_v"][0].as_f64().unwrap(),
+                v[side][field]["bracket_v"][1].as_f64().unwrap(),
+            );
+            assert!(hi - lo <= 1.0 + 1e-9 && lo <= volts && volts <= hi);
+        }
+        assert!(v[side]["ramp"]["trip_v"].as_f64().is_some());
+    }
+    // Under-voltage below nominal, over-voltage above (230 V).
+    assert!(v["under"]["trip"]["volts"].as_f64().unwrap() < 230.0);
+    assert!(v["over"]["trip"]["volts"].as_f64().unwrap() > 230.0);
+    let out = sagtrip(&["thresholds", "--resolution", "0V"]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("--resolution"));
+}

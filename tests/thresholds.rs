@@ -1,0 +1,136 @@
+//! Static thresholds of the reference guard: bisection against a hand calculation from its
+//! divider and zener values, and against the slow ramp through each threshold.
+
+mod common;
+
+use common::circuit;
+use sagtrip::probe::Probe;
+use sagtrip::profile::parse_spec;
+use sagtrip::scenario::{settle, EventOptions};
+use sagtrip::thresholds::{find, StaticThresholds, ThresholdOptions};
+
+fn guard_thresholds() -> StaticThresholds {
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let settled = settle(&guard, &EventOptions::default()).unwrap();
+    find(&settled, &guard, &ThresholdOptions::default()).unwrap()
+}
+
+/// The lowest and highest voltage of node `name` over the settled cycles before an event.
+fn settled_extremes(name: &str) -> (f64, f64) {
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let node = guard.node(name).unwrap();
+    let options = EventOptions {
+        probes: vec![Probe::Voltage { node }],
+        ..EventOptions::default()
+    };
+    let settled = settle(&guard, &options).unwrap();
+    let run = settled
+        .run(&guard, &parse_spec("gap:1cyc", 5e-6).unwrap())
+        .unwrap();
+    let trace = &run.trace;
+    let column = trace.column(&Probe::Voltage { node }).unwrap();
+    let before: Vec<f64> = trace
+        .time
+        .iter()
+        .zip(column)
+        .filter(|(t, _)| **t <= run.onset_s)
+        .map(|(_, v)| *v)
+        .collect();
+    let lo = before.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = before.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    (lo, hi)
+}
+
+#[test]
+fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
+    let t = guard_thresholds();
+    // Hand calculation (Ohm's law and the divider rule, from memory):
+    // the zener: 5.1 V at 5 mA with 10 ohm slope, fed from the 12 V rail through 2.2k and
+    // loaded by the 1.8k + 2.4k + 5.6k = 9.8k reference divider.
+    let mut vz = 5.1;
+    for _ in 0..20 {
+        let iz = (12.0 - vz) / 2200.0 - vz / 9800.0;
+        vz = 5.1 + 10.0 * (iz - 5e-3);
+    }
+    let ref_lo = vz * 5600.0 / 9800.0;
+    let ref_hi = vz * (2400.0 + 5600.0) / 9800.0;
+    // The sense divider 68k / 15k: the comparators switch when sense_raw crosses
+    // ref * 83 / 15.
+    let (raw_min, raw_max) = settled_extremes("sense_raw");
+    // The peak detector's output scales with the line voltage: the under-voltage
+    // comparator first fires when the ripple's valley reaches ref_lo, the over-voltage one
+    // when the peak reaches ref_hi. Scale measured at nominal, 230 V.
+    let uv_hand = 230.0 * ref_lo * 83.0 / 15.0 / raw_min;
+    let ov_hand = 230.0 * ref_hi * 83.0 / 15.0 / raw_max;
+    let uv = t.under.trip.unwrap().volts;
+    let ov = t.over.trip.unwrap().volts;
+    eprintln!(
+        "under-voltage trip {uv:.1} V (hand {uv_hand:.1} V), over {ov:.1} V (hand {ov_hand:.1} V)"
+    );
+    // The bar: within 3% of the hand calculation.
+    assert!(
+        (uv - uv_hand).abs() / uv_hand < 0.03,
+        "under-voltage trip {uv:.1} V, hand {uv_hand:.1} V"
+    );
+    assert!(
+        (ov - ov_hand).abs() / ov_hand < 0.03,
+        "over-voltage trip {ov:.1} V, hand {ov_hand:.1} V"
+    );
+    // Each bracket is within the resolution asked and holds its threshold.
+    for th in [t.under.trip, t.under.reset, t.over.trip, t.over.reset] {
+        let th = th.unwrap();
+        assert!(th.bracket_v.1 - th.bracket_v.0 <= 0.1 + 1e-9);
+        assert!(th.bracket_v.0 <= th.volts && th.volts <= th.bracket_v.1);
+    }
+    // The over-voltage side resets below its trip (the relay coil's load leaves the
+    // sensing supply when it drops out); nothing resets beyond its own trip.
+    assert!(t.over.reset.unwrap().volts <= t.over.trip.unwrap().volts + 0.1);
+    assert!(t.under.reset.unwrap().volts >= t.under.trip.unwrap().volts - 0.1);
+
+    // The slow ramp opens the load where the bisection put the trip, late by at most the
+    // ramp rate times the protector's response (under 0.1 s here: 66 ms for a deep dip,
+    // from the event runs), plus the resolution.
+    for side in [&t.under, &t.over] {
+        let ramp = side.ramp.as_ref().unwrap();
+        let static_v = side.trip.unwrap().volts;
+        let opened = ramp.trip_v.unwrap();
+        let allowance = ramp.rate_v_per_s * 0.1 + 0.1;
+        assert!(
+            (opened - static_v).abs() <= allowance,
+            "{:?}: ramp opened at {opened:.2} V, static {static_v:.2} V, allowance {allowance:.2} V",
+            side.side
+        );
+    }
+    // Without hysteresis in its comparators, the guard's outputs toggle many times on a
+    // slow ramp through a threshold (the design's known weakness, see the circuit file).
+    let uv_ramp = t.under.ramp.as_ref().unwrap();
+    assert!(uv_ramp.comparator_toggles.iter().any(|(_, k)| *k > 10));
+}
+
+#[test]
+fn the_hysteresis_variant_shows_a_wider_hysteresis() {
+    // The variant adds positive feedback to each comparator (see its circuit file): its
+    // under-voltage reset lies above its trip by more than the resolution.
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/guard-230v-hysteresis.toml"
+    ))
+    .unwrap();
+    let variant = circuit(&text);
+    let settled = settle(&variant, &EventOptions::default()).unwrap();
+    let options = ThresholdOptions {
+        resolution_v: 0.2,
+        ..ThresholdOptions::default()
+    };
+    let t = find(&settled, &variant, &options).unwrap();
+    let base = guard_thresholds();
+    let h = t.under.hysteresis_v.unwrap();
+    // The circuit file's own hand estimate is "some 9%" of the mains; ask for at least 5%.
+    assert!(h > 0.05 * 230.0, "variant {h:.1} V");
+    assert!(
+        h > base.under.hysteresis_v.unwrap() + 1.0,
+        "variant {h:.1} V, reference {:.1} V",
+        base.under.hysteresis_v.unwrap()
+    );
+    assert!(t.under.reset.unwrap().volts > t.under.trip.unwrap().volts);
+}
