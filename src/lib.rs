@@ -29,6 +29,7 @@ pub mod scenario;
 pub mod summary;
 pub mod sweep;
 pub mod synth;
+pub mod table;
 pub mod thresholds;
 pub mod units;
 pub mod waveform;

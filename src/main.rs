@@ -71,6 +71,43 @@ enum Command {
     /// Find the static over- and under-voltage trip and reset voltages by bisection, and
     /// ramp slowly through each to show chatter.
     Thresholds(ThresholdsArgs),
+    /// The datasheet timing table: the IEC 61000-4-11 preferred tests of a class, swells
+    /// and the static thresholds, at four start phases, as Markdown, CSV or JSON.
+    Table(TableArgs),
+}
+
+#[derive(Args)]
+struct TableArgs {
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    circuit: Option<PathBuf>,
+    /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
+    #[arg(long)]
+    nominal: Option<String>,
+    /// IEC 61000-4-11 test class of the default plan (2 or 3).
+    #[arg(long, default_value_t = 3)]
+    class: u8,
+    /// A test plan file (TOML) instead of the default plan; see docs/table.md.
+    #[arg(long)]
+    plan: Option<PathBuf>,
+    /// Start phase angles in degrees, e.g. 0,90,180,270 (default: the plan's).
+    #[arg(long)]
+    phases: Option<String>,
+    /// Leave the static thresholds out.
+    #[arg(long)]
+    no_thresholds: bool,
+    /// Also write the table as CSV to this file.
+    #[arg(long)]
+    csv: Option<PathBuf>,
+    /// Also write the Markdown table to this file.
+    #[arg(long)]
+    markdown: Option<PathBuf>,
+    /// Print the table as JSON instead of Markdown.
+    #[arg(long)]
+    json: bool,
+    /// No progress bar.
+    #[arg(long)]
+    quiet: bool,
 }
 
 #[derive(Args)]
@@ -371,6 +408,7 @@ fn main() -> ExitCode {
         Command::Detect(args) => detect_command(&args),
         Command::Replay(args) => replay_command(&args),
         Command::Thresholds(args) => thresholds_command(&args),
+        Command::Table(args) => table_command(&args),
     };
     match result {
         Ok(text) => {
@@ -2302,5 +2340,118 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
         );
     }
     say!(out, "\n{wall:.1} s wall");
+    Ok(out)
+}
+
+fn table_command(args: &TableArgs) -> Result<String, String> {
+    use sagtrip::table::{csv, default_plan, markdown, parse_plan, run_tests, Table};
+    let mut out = String::new();
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let options = EventOptions {
+        nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
+        ..EventOptions::default()
+    };
+    // The plan first: a mistake in it is reported before any simulation.
+    let frequency_hint = options
+        .nominal
+        .map(|(_, f)| f)
+        .or_else(|| {
+            sagtrip::scenario::find_mains(&circuit, None)
+                .ok()
+                .map(|m| m.frequency_hz)
+        })
+        .unwrap_or(50.0);
+    let mut plan = match &args.plan {
+        Some(path) => {
+            let text = std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read plan {}: {e}", path.display()))?;
+            parse_plan(&text, &path.display().to_string(), frequency_hint)
+                .map_err(|e| e.to_string())?
+        }
+        None => default_plan(args.class, frequency_hint)?,
+    };
+    if let Some(text) = &args.phases {
+        plan.phases = text
+            .split(',')
+            .map(|p| {
+                p.trim()
+                    .trim_end_matches("deg")
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|x| x.is_finite())
+                    .ok_or_else(|| format!("--phases {text}: expected degrees, e.g. 0,90,180,270"))
+            })
+            .collect::<Result<_, _>>()?;
+    }
+    if args.no_thresholds {
+        plan.thresholds = false;
+    }
+    for path in [&args.csv, &args.markdown].into_iter().flatten() {
+        if path.as_os_str().is_empty() {
+            return Err("an output file name is empty".into());
+        }
+    }
+    let started = Instant::now();
+    let settled =
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+    let runs = plan.tests.len() * plan.phases.len();
+    let bar = if args.quiet || args.json {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::new(runs as u64 + u64::from(plan.thresholds))
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let thresholds = if plan.thresholds {
+        let t = sagtrip::thresholds::find(
+            &settled,
+            &circuit,
+            &sagtrip::thresholds::ThresholdOptions::default(),
+        )
+        .map_err(|e| format!("{name}: thresholds: {e}"))?;
+        bar.inc(1);
+        Some(t)
+    } else {
+        None
+    };
+    let rows =
+        run_tests(&settled, &circuit, &plan, &|| bar.inc(1)).map_err(|e| format!("{name}: {e}"))?;
+    bar.finish_and_clear();
+    let table = Table {
+        circuit: circuit.title.clone(),
+        plan: plan.title.clone(),
+        nominal_rms_v: settled.rms,
+        frequency_hz: settled.frequency_hz,
+        phases_deg: plan.phases.clone(),
+        rows,
+        thresholds,
+        runs,
+    };
+    let wall = started.elapsed().as_secs_f64();
+    let text = markdown(&table);
+    if let Some(path) = &args.csv {
+        write_atomic(path, |w| w.write_all(csv(&table).as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    if let Some(path) = &args.markdown {
+        write_atomic(path, |w| w.write_all(text.as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    if args.json {
+        let mut value = serde_json::to_value(&table).unwrap_or_default();
+        value["wall_time_s"] = serde_json::json!(wall);
+        say!(
+            out,
+            "{}",
+            serde_json::to_string_pretty(&value).unwrap_or_default()
+        );
+        return Ok(out);
+    }
+    out.push_str(&text);
+    say!(out, "\n({name}; {wall:.1} s wall)");
     Ok(out)
 }

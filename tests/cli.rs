@@ -580,3 +580,54 @@ fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("--resolution"));
 }
+
+#[test]
+fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
+    let md = temp_path("table.md");
+    let csv = temp_path("table.csv");
+    let out = sagtrip(&[
+        "table",
+        "--plan",
+        concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/examples/plans/quick-check.toml"
+        ),
+        "--phases",
+        "0,180",
+        "--markdown",
+        md.to_str().unwrap(),
+        "--csv",
+        csv.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        stdout.contains("| deep dip | IEC 61000-4-11 Table 1 (dips) | `dip:40%:10cyc` | trips |")
+    );
+    assert!(stdout.contains("0°, 180° start phase; 6 simulated runs"));
+    let written = std::fs::read_to_string(&md).unwrap();
+    assert!(stdout.starts_with(&written));
+    let lines: Vec<String> = std::fs::read_to_string(&csv)
+        .unwrap()
+        .lines()
+        .map(String::from)
+        .collect();
+    assert_eq!(lines.len(), 4);
+    assert!(lines[0].starts_with("test,source,event,outcome,trip_min_ms"));
+    assert!(lines[3].starts_with("generator swell,\"site survey, feeder 3\",swell:125%:1s,trips,"));
+    // A mistake in the plan is reported with its place, before any simulation.
+    let plan = temp_path("bad-plan.toml");
+    std::fs::write(&plan, "[[test]]\nname = \"x\"\nevent = \"dip:140%:1cyc\"\n").unwrap();
+    let out = sagtrip(&["table", "--plan", plan.to_str().unwrap()]);
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("bad-plan.toml:3:") && err.contains("test.1.event"),
+        "{err}"
+    );
+}

@@ -1,0 +1,508 @@
+//! The datasheet timing table: a test plan (by default the IEC 61000-4-11 preferred levels
+//! of a class, swells and the static thresholds) run at several start phase angles, each
+//! test summarised as its outcome and the spread of its timings.
+
+use std::fmt::Write as _;
+
+use rayon::prelude::*;
+use serde::{Deserialize, Serialize};
+
+use crate::circuit::Circuit;
+use crate::profile::{iec_presets, resolve, Duration, Profile, Step, DEFAULT_EDGE_S};
+use crate::scenario::{EventRun, ScenarioError, Settled};
+use crate::thresholds::StaticThresholds;
+
+/// One test of a plan.
+#[derive(Clone, Debug)]
+pub struct PlanTest {
+    /// Name in the table.
+    pub name: String,
+    /// Where the test comes from (a table of a standard, or the plan file).
+    pub source: String,
+    /// The event (its phase is replaced by each of the plan's phases).
+    pub profile: Profile,
+}
+
+/// A test plan.
+#[derive(Clone, Debug)]
+pub struct Plan {
+    /// What the plan is, for the report's heading.
+    pub title: String,
+    /// The tests in table order.
+    pub tests: Vec<PlanTest>,
+    /// Start phase angles, degrees.
+    pub phases: Vec<f64>,
+    /// Whether the static thresholds are part of the table.
+    pub thresholds: bool,
+}
+
+/// The swell levels and durations of the default plan (IEC 61000-4-11 sets no swell
+/// levels; these bracket the over-voltage trip of a 230 V guard and follow the dip
+/// durations).
+pub const DEFAULT_SWELLS: [f64; 4] = [1.1, 1.2, 1.3, 1.5];
+/// Durations of the default swells, cycles.
+pub const DEFAULT_SWELL_CYCLES: [f64; 3] = [10.0, 25.0, 250.0];
+/// The default start phase angles, degrees.
+pub const DEFAULT_PHASES: [f64; 4] = [0.0, 90.0, 180.0, 270.0];
+
+/// The default plan: the IEC 61000-4-11 preferred tests of `class` (2 or 3) at
+/// `frequency_hz`, the default swells, the static thresholds, at 0, 90, 180 and 270 degrees.
+pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, String> {
+    if class != 2 && class != 3 {
+        return Err(format!(
+            "class {class}: the standard's preferred levels exist for classes 2 and 3 (class 1 \
+             and class X are agreed case by case: give them as a plan file)"
+        ));
+    }
+    let sixty = (frequency_hz - 60.0).abs() < 5.0;
+    let mut tests: Vec<PlanTest> = iec_presets()
+        .into_iter()
+        .filter(|p| p.class == class)
+        .map(|p| PlanTest {
+            name: p.name.clone(),
+            source: p.table.to_string(),
+            profile: if sixty {
+                p.profile_60hz
+            } else {
+                p.profile_50hz
+            },
+        })
+        .collect();
+    for level in DEFAULT_SWELLS {
+        for cycles in DEFAULT_SWELL_CYCLES {
+            tests.push(PlanTest {
+                name: format!("swell-{:.0}-{cycles:.0}cyc", level * 100.0),
+                source: "sagtrip default swell".into(),
+                profile: Profile {
+                    steps: vec![Step::Swell {
+                        level,
+                        duration: Duration::Cycles(cycles),
+                    }],
+                    phase_deg: 0.0,
+                    edge_s: DEFAULT_EDGE_S,
+                },
+            });
+        }
+    }
+    Ok(Plan {
+        title: format!(
+            "IEC 61000-4-11 class {class} preferred tests, swells and static thresholds"
+        ),
+        tests,
+        phases: DEFAULT_PHASES.to_vec(),
+        thresholds: true,
+    })
+}
+
+/// A mistake in a plan file, with its place.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error("{path}:{line}:{column}: {field}: {message}")]
+pub struct PlanError {
+    /// The file.
+    pub path: String,
+    /// Line, from 1.
+    pub line: usize,
+    /// Column, from 1.
+    pub column: usize,
+    /// The field, e.g. `test.2.event`.
+    pub field: String,
+    /// What is wrong.
+    pub message: String,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanFile {
+    title: Option<String>,
+    phases: Option<toml::Spanned<Vec<f64>>>,
+    thresholds: Option<bool>,
+    #[serde(default)]
+    test: Vec<PlanFileTest>,
+}
+
+#[derive(Deserialize)]
+#[serde(deny_unknown_fields)]
+struct PlanFileTest {
+    name: toml::Spanned<String>,
+    event: toml::Spanned<String>,
+    source: Option<String>,
+}
+
+fn line_column(text: &str, offset: usize) -> (usize, usize) {
+    let before = &text[..offset.min(text.len())];
+    let line = before.matches('\n').count() + 1;
+    let column = before
+        .rfind('\n')
+        .map_or(before.len(), |n| before.len() - n - 1)
+        + 1;
+    (line, column)
+}
+
+/// Reads a plan file (TOML): `title`, `phases`, `thresholds` and `[[test]]` tables with
+/// `name`, `event` (a compact event or a preset name) and an optional `source`.
+pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, PlanError> {
+    let error = |offset: usize, field: &str, message: String| {
+        let (line, column) = line_column(text, offset);
+        PlanError {
+            path: path.to_string(),
+            line,
+            column,
+            field: field.to_string(),
+            message,
+        }
+    };
+    let file: PlanFile = toml::from_str(text).map_err(|e| {
+        let offset = e.span().map_or(0, |s| s.start);
+        error(offset, "plan", e.message().to_string())
+    })?;
+    let phases = match &file.phases {
+        Some(p) => {
+            let list = p.get_ref().clone();
+            if list.is_empty() || list.iter().any(|x| !x.is_finite()) {
+                return Err(error(
+                    p.span().start,
+                    "phases",
+                    "give at least one finite angle in degrees, e.g. [0, 90, 180, 270]".into(),
+                ));
+            }
+            list
+        }
+        None => DEFAULT_PHASES.to_vec(),
+    };
+    if file.test.is_empty() && !file.thresholds.unwrap_or(true) {
+        return Err(error(
+            0,
+            "test",
+            "the plan has no [[test]] and no thresholds: nothing to run".into(),
+        ));
+    }
+    let mut tests = Vec::new();
+    for (k, t) in file.test.iter().enumerate() {
+        let field = format!("test.{}.event", k + 1);
+        let profile = resolve(t.event.get_ref(), frequency_hz, DEFAULT_EDGE_S)
+            .map_err(|e| error(t.event.span().start + 1 + e.at, &field, e.message.clone()))?;
+        let name = t.name.get_ref().trim();
+        if name.is_empty() {
+            return Err(error(
+                t.name.span().start,
+                &format!("test.{}.name", k + 1),
+                "a test needs a name".into(),
+            ));
+        }
+        tests.push(PlanTest {
+            name: name.to_string(),
+            // A preset names its table of the standard; anything else the plan file.
+            source: t.source.clone().unwrap_or_else(|| {
+                let event = t.event.get_ref();
+                let preset = event.split('@').next().unwrap_or("").trim();
+                iec_presets()
+                    .into_iter()
+                    .find(|p| p.name == preset)
+                    .map_or_else(|| path.to_string(), |p| p.table.to_string())
+            }),
+            profile,
+        });
+    }
+    Ok(Plan {
+        title: file.title.unwrap_or_else(|| path.to_string()),
+        tests,
+        phases,
+        thresholds: file.thresholds.unwrap_or(true),
+    })
+}
+
+/// Smallest, typical and largest value of a timing over the runs where it exists. Typical
+/// is the median (the mean of the middle two of an even count).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Spread {
+    /// Smallest.
+    pub min: f64,
+    /// Median.
+    pub typical: f64,
+    /// Largest.
+    pub max: f64,
+}
+
+impl Spread {
+    /// The spread of `values`, or `None` if there are none.
+    pub fn of(values: &[f64]) -> Option<Spread> {
+        if values.is_empty() {
+            return None;
+        }
+        let mut v = values.to_vec();
+        v.sort_by(f64::total_cmp);
+        let n = v.len();
+        let typical = if n % 2 == 1 {
+            v[n / 2]
+        } else {
+            0.5 * (v[n / 2 - 1] + v[n / 2])
+        };
+        Some(Spread {
+            min: v[0],
+            typical,
+            max: v[n - 1],
+        })
+    }
+}
+
+/// One test's row.
+#[derive(Clone, Debug, Serialize)]
+pub struct Row {
+    /// Test name.
+    pub name: String,
+    /// Where it comes from.
+    pub source: String,
+    /// The event, compact form.
+    pub event: String,
+    /// `rides through`, `trips`, `chatters`, or `trips at` some phases.
+    pub outcome: String,
+    /// Phases at which it tripped, degrees.
+    pub tripped_at_deg: Vec<f64>,
+    /// Phases at which the relay chattered, degrees.
+    pub chattered_at_deg: Vec<f64>,
+    /// Onset to the load path opening, over the runs that tripped.
+    pub trip_latency_ms: Option<Spread>,
+    /// End of the event to the final reconnection.
+    pub restore_latency_ms: Option<Spread>,
+    /// First drop-out to the load path opening.
+    pub release_time_ms: Option<Spread>,
+    /// Last pick-up to the first making of the load path.
+    pub operate_time_ms: Option<Spread>,
+    /// Lowest logic-rail voltage over all runs, volts.
+    pub min_rail_v: Option<f64>,
+}
+
+/// The whole table.
+#[derive(Clone, Debug, Serialize)]
+pub struct Table {
+    /// The circuit's title.
+    pub circuit: String,
+    /// The plan's title.
+    pub plan: String,
+    /// Nominal RMS voltage, volts.
+    pub nominal_rms_v: f64,
+    /// Nominal frequency, hertz.
+    pub frequency_hz: f64,
+    /// Start phase angles, degrees.
+    pub phases_deg: Vec<f64>,
+    /// One row per test.
+    pub rows: Vec<Row>,
+    /// The static thresholds, if the plan has them.
+    pub thresholds: Option<StaticThresholds>,
+    /// Simulated runs.
+    pub runs: usize,
+}
+
+fn row(test: &PlanTest, phases: &[f64], runs: &[EventRun]) -> Row {
+    let collect =
+        |f: &dyn Fn(&EventRun) -> Option<f64>| -> Vec<f64> { runs.iter().filter_map(f).collect() };
+    let tripped_at: Vec<f64> = phases
+        .iter()
+        .zip(runs)
+        .filter(|(_, r)| r.measurements.tripped)
+        .map(|(p, _)| *p)
+        .collect();
+    let chattered_at: Vec<f64> = phases
+        .iter()
+        .zip(runs)
+        .filter(|(_, r)| r.measurements.relay_chatter)
+        .map(|(p, _)| *p)
+        .collect();
+    let outcome = if !chattered_at.is_empty() {
+        "chatters".to_string()
+    } else if tripped_at.len() == runs.len() {
+        "trips".to_string()
+    } else if tripped_at.is_empty() {
+        "rides through".to_string()
+    } else {
+        let list: Vec<String> = tripped_at.iter().map(|p| format!("{p}°")).collect();
+        format!("trips at {}", list.join(", "))
+    };
+    Row {
+        name: test.name.clone(),
+        source: test.source.clone(),
+        event: test.profile.spec(),
+        outcome,
+        tripped_at_deg: tripped_at,
+        chattered_at_deg: chattered_at,
+        trip_latency_ms: Spread::of(&collect(&|r| r.measurements.trip_latency_ms)),
+        restore_latency_ms: Spread::of(&collect(&|r| r.measurements.restore_latency_ms)),
+        release_time_ms: Spread::of(&collect(&|r| r.measurements.release_time_ms)),
+        operate_time_ms: Spread::of(&collect(&|r| r.measurements.operate_time_ms)),
+        min_rail_v: runs.iter().filter_map(|r| r.min_rail_v).reduce(f64::min),
+    }
+}
+
+/// Runs every test of `plan` at every phase, in parallel from the settled protector;
+/// `done` is called after each run (for a progress display).
+pub fn run_tests(
+    settled: &Settled,
+    circuit: &Circuit,
+    plan: &Plan,
+    done: &(dyn Fn() + Sync),
+) -> Result<Vec<Row>, String> {
+    let jobs: Vec<(usize, f64)> = (0..plan.tests.len())
+        .flat_map(|t| plan.phases.iter().map(move |&p| (t, p)))
+        .collect();
+    let results: Vec<Result<EventRun, String>> = jobs
+        .par_iter()
+        .map(|&(t, phase)| {
+            let test = &plan.tests[t];
+            let mut profile = test.profile.clone();
+            profile.phase_deg = phase;
+            let run = settled
+                .run(circuit, &profile)
+                .map_err(|e: ScenarioError| format!("test {} at {phase}°: {e}", test.name));
+            done();
+            run
+        })
+        .collect();
+    let mut runs = results.into_iter();
+    let mut rows = Vec::with_capacity(plan.tests.len());
+    for test in &plan.tests {
+        let mine: Vec<EventRun> = runs
+            .by_ref()
+            .take(plan.phases.len())
+            .collect::<Result<_, _>>()?;
+        rows.push(row(test, &plan.phases, &mine));
+    }
+    Ok(rows)
+}
+
+fn ms(s: Option<Spread>) -> [String; 3] {
+    match s {
+        Some(s) => [
+            format!("{:.1}", s.min),
+            format!("{:.1}", s.typical),
+            format!("{:.1}", s.max),
+        ],
+        None => ["-".into(), "-".into(), "-".into()],
+    }
+}
+
+/// The table as Markdown: readable in a terminal, pasteable into a datasheet.
+pub fn markdown(table: &Table) -> String {
+    let mut out = String::new();
+    let phases: Vec<String> = table.phases_deg.iter().map(|p| format!("{p}°")).collect();
+    let _ = writeln!(out, "# {}\n", table.circuit);
+    let _ = writeln!(
+        out,
+        "{} on a {:.0} V {:.0} Hz supply; each test at {} start phase; {} simulated runs. \
+         Times in ms as min / typical / max over the phases (typical: the median).\n",
+        table.plan,
+        table.nominal_rms_v,
+        table.frequency_hz,
+        phases.join(", "),
+        table.runs
+    );
+    let _ = writeln!(
+        out,
+        "| test | source | event | outcome | trip latency | restore latency | release time | operate time |"
+    );
+    let _ = writeln!(out, "|---|---|---|---|---|---|---|---|");
+    for r in &table.rows {
+        let cell = |s: Option<Spread>| {
+            let [a, b, c] = ms(s);
+            if a == "-" {
+                "-".to_string()
+            } else {
+                format!("{a} / {b} / {c}")
+            }
+        };
+        let _ = writeln!(
+            out,
+            "| {} | {} | `{}` | {} | {} | {} | {} | {} |",
+            r.name,
+            r.source,
+            r.event,
+            r.outcome,
+            cell(r.trip_latency_ms),
+            cell(r.restore_latency_ms),
+            cell(r.release_time_ms),
+            cell(r.operate_time_ms)
+        );
+    }
+    if let Some(t) = &table.thresholds {
+        let _ = writeln!(
+            out,
+            "\n## Static thresholds\n\nEach level held {} s, found by bisection to {} V.\n",
+            t.hold_s, t.resolution_v
+        );
+        let _ = writeln!(out, "| side | trip | reset | hysteresis | slow ramp |");
+        let _ = writeln!(out, "|---|---|---|---|---|");
+        for s in [&t.under, &t.over] {
+            let v = |x: Option<crate::thresholds::Threshold>| {
+                x.map_or("-".to_string(), |x| {
+                    format!("{:.1} V ({:.1}%)", x.volts, x.percent)
+                })
+            };
+            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
+                if r.relay_chatters {
+                    format!("relay chatters ({} armature moves)", r.relay_transitions)
+                } else {
+                    "one trip, one reset".to_string()
+                }
+            });
+            let _ = writeln!(
+                out,
+                "| {} | {} | {} | {} | {} |",
+                match s.side {
+                    crate::thresholds::Side::Under => "under-voltage",
+                    crate::thresholds::Side::Over => "over-voltage",
+                },
+                v(s.trip),
+                v(s.reset),
+                s.hysteresis_v
+                    .map_or("-".to_string(), |h| format!("{h:.1} V")),
+                ramp
+            );
+            if let Some(note) = &s.note {
+                let _ = writeln!(out, "\n{note}");
+            }
+        }
+    }
+    out
+}
+
+/// The table as CSV: one line per test, the spreads in three columns each.
+pub fn csv(table: &Table) -> String {
+    let mut out = String::from(
+        "test,source,event,outcome,trip_min_ms,trip_typical_ms,trip_max_ms,\
+         restore_min_ms,restore_typical_ms,restore_max_ms,release_min_ms,release_typical_ms,\
+         release_max_ms,operate_min_ms,operate_typical_ms,operate_max_ms,min_rail_v\n",
+    );
+    let quote = |s: &str| {
+        if s.contains([',', '"', '\n']) {
+            format!("\"{}\"", s.replace('"', "\"\""))
+        } else {
+            s.to_string()
+        }
+    };
+    for r in &table.rows {
+        let mut cells = vec![
+            quote(&r.name),
+            quote(&r.source),
+            quote(&r.event),
+            quote(&r.outcome),
+        ];
+        for s in [
+            r.trip_latency_ms,
+            r.restore_latency_ms,
+            r.release_time_ms,
+            r.operate_time_ms,
+        ] {
+            let [a, b, c] = match s {
+                Some(s) => [
+                    format!("{:.3}", s.min),
+                    format!("{:.3}", s.typical),
+                    format!("{:.3}", s.max),
+                ],
+                None => [String::new(), String::new(), String::new()],
+            };
+            cells.extend([a, b, c]);
+        }
+        cells.push(r.min_rail_v.map_or(String::new(), |v| format!("{v:.3}")));
+        let _ = writeln!(out, "{}", cells.join(","));
+    }
+    out
+}
