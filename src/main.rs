@@ -102,6 +102,10 @@ struct TableArgs {
     /// Also write the Markdown table to this file.
     #[arg(long)]
     markdown: Option<PathBuf>,
+    /// Also write a self-contained HTML report (the table, a trip map of dips 0..90% and
+    /// swells 110..150% from half a cycle to 10 s at 0 and 90 degrees, the threshold plot).
+    #[arg(long)]
+    html: Option<PathBuf>,
     /// Print the table as JSON instead of Markdown.
     #[arg(long)]
     json: bool,
@@ -128,6 +132,9 @@ struct ThresholdsArgs {
     /// Time of each slow ramp, out through the threshold and back.
     #[arg(long, default_value = "10s")]
     ramp: String,
+    /// Draw the trip and reset voltages on a voltage axis into FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
     /// Print the result as JSON.
     #[arg(long)]
     json: bool,
@@ -2200,6 +2207,17 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
         nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
         ..EventOptions::default()
     };
+    if let Some(path) = &args.plot {
+        if !matches!(
+            path.extension().and_then(|e| e.to_str()),
+            Some("svg" | "png")
+        ) {
+            return Err(format!(
+                "--plot {}: the file name must end in .svg or .png",
+                path.display()
+            ));
+        }
+    }
     let started = Instant::now();
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
@@ -2223,6 +2241,14 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
     }
     let result =
         find(&settled, &circuit, &threshold_options).map_err(|e| format!("{name}: {e}"))?;
+    if let Some(path) = &args.plot {
+        let title = format!("Static thresholds: {}", circuit.title);
+        write_plot(
+            path,
+            |p| sagtrip::plot::thresholds_png(&result, &title, p),
+            || sagtrip::plot::thresholds_svg(&result, &title),
+        )?;
+    }
     let wall = started.elapsed().as_secs_f64();
     if args.json {
         let mut value = serde_json::to_value(&result).unwrap_or_default();
@@ -2386,7 +2412,10 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     if args.no_thresholds {
         plan.thresholds = false;
     }
-    for path in [&args.csv, &args.markdown].into_iter().flatten() {
+    for path in [&args.csv, &args.markdown, &args.html]
+        .into_iter()
+        .flatten()
+    {
         if path.as_os_str().is_empty() {
             return Err("an output file name is empty".into());
         }
@@ -2395,10 +2424,24 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
     let runs = plan.tests.len() * plan.phases.len();
+    // The report's trip map: a coarse grid (the sweep command refines it further).
+    let map_grid = sagtrip::sweep::Grid {
+        levels_pct: (0..10)
+            .map(|k| f64::from(k) * 10.0)
+            .chain([110.0, 120.0, 130.0, 150.0])
+            .collect(),
+        durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
+        phases_deg: vec![0.0, 90.0],
+    };
+    let map_runs = if args.html.is_some() {
+        map_grid.points().len()
+    } else {
+        0
+    };
     let bar = if args.quiet || args.json {
         indicatif::ProgressBar::hidden()
     } else {
-        indicatif::ProgressBar::new(runs as u64 + u64::from(plan.thresholds))
+        indicatif::ProgressBar::new((runs + map_runs) as u64 + u64::from(plan.thresholds))
     };
     bar.set_style(
         indicatif::ProgressStyle::with_template(
@@ -2431,7 +2474,6 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         thresholds,
         runs,
     };
-    let wall = started.elapsed().as_secs_f64();
     let text = markdown(&table);
     if let Some(path) = &args.csv {
         write_atomic(path, |w| w.write_all(csv(&table).as_bytes()))
@@ -2441,6 +2483,44 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         write_atomic(path, |w| w.write_all(text.as_bytes()))
             .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
+    if let Some(path) = &args.html {
+        let points =
+            sagtrip::sweep::run_grid(&settled, &circuit, &map_grid, DEFAULT_EDGE_S, &|| {
+                bar.inc(1)
+            });
+        let map = sagtrip::sweep::cells(&points);
+        let map_svg = sagtrip::plot::map_svg(&sagtrip::plot::MapData {
+            title: format!("Trip map: {}", circuit.title),
+            cells: &map,
+            durations_s: &map_grid.durations_s,
+            levels_pct: &map_grid.levels_pct,
+            boundaries: Vec::new(),
+            frequency_hz: settled.frequency_hz,
+        })?;
+        let mut figures: Vec<(String, String)> = vec![(
+            "Trip map: worst case over 0 and 90 degrees for each level and duration, with the \
+             reference ride-through curves (sagtrip sweep refines the boundary)"
+                .to_string(),
+            map_svg,
+        )];
+        if let Some(t) = &table.thresholds {
+            figures.push((
+                "Static thresholds: the trip voltages from normal supply and the reset \
+                 voltages after a trip"
+                    .to_string(),
+                sagtrip::plot::thresholds_svg(t, &format!("Static thresholds: {}", circuit.title))?,
+            ));
+        }
+        let refs: Vec<(&str, &str)> = figures
+            .iter()
+            .map(|(c, s)| (c.as_str(), s.as_str()))
+            .collect();
+        let page = sagtrip::table::html(&table, &refs);
+        write_atomic(path, |w| w.write_all(page.as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    bar.finish_and_clear();
+    let wall = started.elapsed().as_secs_f64();
     if args.json {
         let mut value = serde_json::to_value(&table).unwrap_or_default();
         value["wall_time_s"] = serde_json::json!(wall);

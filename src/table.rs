@@ -506,3 +506,141 @@ pub fn csv(table: &Table) -> String {
     }
     out
 }
+
+fn escape(text: &str) -> String {
+    text.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+/// The table as one self-contained HTML page (no network, no scripts): the heading, the
+/// safety caution, the table, the static thresholds and the given SVG figures inline.
+pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
+    let mut out = String::new();
+    let phases: Vec<String> = table.phases_deg.iter().map(|p| format!("{p}°")).collect();
+    let _ = write!(
+        out,
+        "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
+         <title>{title}: timing table</title>\n<style>\n\
+         body {{ font-family: sans-serif; margin: 2em auto; max-width: 1200px; color: #222; }}\n\
+         table {{ border-collapse: collapse; margin: 1em 0; }}\n\
+         th, td {{ border: 1px solid #bbb; padding: 0.3em 0.6em; text-align: left; }}\n\
+         td.num {{ text-align: right; font-variant-numeric: tabular-nums; }}\n\
+         th {{ background: #eee; }}\n\
+         .caution {{ border-left: 4px solid #c00; padding: 0.5em 1em; background: #fff4f4; }}\n\
+         figure {{ margin: 1.5em 0; }} svg {{ max-width: 100%; height: auto; }}\n\
+         </style>\n</head>\n<body>\n<h1>{title}</h1>\n",
+        title = escape(&table.circuit)
+    );
+    let _ = writeln!(
+        out,
+        "<p>{} on a {:.0} V {:.0} Hz supply; each test at {} start phase; {} simulated runs. \
+         Times in ms as min / typical / max over the phases (typical: the median).</p>",
+        escape(&table.plan),
+        table.nominal_rms_v,
+        table.frequency_hz,
+        phases.join(", "),
+        table.runs
+    );
+    let _ = writeln!(
+        out,
+        "<p class=\"caution\"><strong>Safety.</strong> Mains voltage can kill. These are \
+         simulated results of a circuit model: they do not replace testing a real unit, the \
+         electrical codes that apply, or the judgement of a licensed practitioner.</p>"
+    );
+    let _ = writeln!(
+        out,
+        "<table>\n<tr><th>test</th><th>source</th><th>event</th><th>outcome</th>\
+         <th>trip latency</th><th>restore latency</th><th>release time</th>\
+         <th>operate time</th></tr>"
+    );
+    for r in &table.rows {
+        let cell = |s: Option<Spread>| {
+            let [a, b, c] = ms(s);
+            if a == "-" {
+                "-".to_string()
+            } else {
+                format!("{a} / {b} / {c}")
+            }
+        };
+        let _ = writeln!(
+            out,
+            "<tr><td>{}</td><td>{}</td><td><code>{}</code></td><td>{}</td>\
+             <td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
+             <td class=\"num\">{}</td></tr>",
+            escape(&r.name),
+            escape(&r.source),
+            escape(&r.event),
+            escape(&r.outcome),
+            cell(r.trip_latency_ms),
+            cell(r.restore_latency_ms),
+            cell(r.release_time_ms),
+            cell(r.operate_time_ms)
+        );
+    }
+    let _ = writeln!(out, "</table>");
+    if let Some(t) = &table.thresholds {
+        let _ = writeln!(
+            out,
+            "<h2>Static thresholds</h2>\n<p>Each level held {} s, found by bisection to {} V.</p>\n\
+             <table>\n<tr><th>side</th><th>trip</th><th>reset</th><th>hysteresis</th>\
+             <th>slow ramp</th></tr>",
+            t.hold_s, t.resolution_v
+        );
+        for s in [&t.under, &t.over] {
+            let v = |x: Option<crate::thresholds::Threshold>| {
+                x.map_or("-".to_string(), |x| {
+                    format!("{:.1} V ({:.1}%)", x.volts, x.percent)
+                })
+            };
+            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
+                if r.relay_chatters {
+                    format!("relay chatters ({} armature moves)", r.relay_transitions)
+                } else {
+                    "one trip, one reset".to_string()
+                }
+            });
+            let _ = writeln!(
+                out,
+                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
+                 <td class=\"num\">{}</td><td>{}</td></tr>",
+                match s.side {
+                    crate::thresholds::Side::Under => "under-voltage",
+                    crate::thresholds::Side::Over => "over-voltage",
+                },
+                v(s.trip),
+                v(s.reset),
+                s.hysteresis_v
+                    .map_or("-".to_string(), |h| format!("{h:.1} V")),
+                escape(&ramp)
+            );
+        }
+        let _ = writeln!(out, "</table>");
+        for s in [&t.under, &t.over] {
+            if let Some(note) = &s.note {
+                let _ = writeln!(out, "<p>{}</p>", escape(note));
+            }
+        }
+    }
+    for (caption, svg) in figures {
+        // An SVG document's XML declaration is not allowed inside HTML.
+        let body = svg
+            .trim_start()
+            .strip_prefix("<?xml")
+            .and_then(|rest| rest.split_once("?>").map(|(_, b)| b))
+            .unwrap_or(svg);
+        let _ = writeln!(
+            out,
+            "<figure>\n{}\n<figcaption>{}</figcaption>\n</figure>",
+            body.trim(),
+            escape(caption)
+        );
+    }
+    let _ = writeln!(
+        out,
+        "<p>Made by sagtrip {}.</p>\n</body>\n</html>",
+        env!("CARGO_PKG_VERSION")
+    );
+    out
+}

@@ -546,6 +546,7 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
 
 #[test]
 fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
+    let plot = temp_path("thresholds.svg");
     let out = sagtrip(&[
         "thresholds",
         "--resolution",
@@ -555,6 +556,8 @@ fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
         "--ramp",
         "3s",
         "--json",
+        "--plot",
+        plot.to_str().unwrap(),
     ]);
     assert!(
         out.status.success(),
@@ -576,6 +579,8 @@ fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
     // Under-voltage below nominal, over-voltage above (230 V).
     assert!(v["under"]["trip"]["volts"].as_f64().unwrap() < 230.0);
     assert!(v["over"]["trip"]["volts"].as_f64().unwrap() > 230.0);
+    let svg = std::fs::read_to_string(&plot).unwrap();
+    assert!(svg.contains("trip (from normal)") && svg.contains("nominal 230 V"));
     let out = sagtrip(&["thresholds", "--resolution", "0V"]);
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("--resolution"));
@@ -630,4 +635,37 @@ fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
         err.contains("bad-plan.toml:3:") && err.contains("test.1.event"),
         "{err}"
     );
+}
+
+#[test]
+fn table_writes_a_self_contained_html_report() {
+    let html = temp_path("report.html");
+    let out = sagtrip(&[
+        "table",
+        "--plan",
+        concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/examples/plans/quick-check.toml"
+        ),
+        "--phases",
+        "0",
+        "--html",
+        html.to_str().unwrap(),
+        "--quiet",
+    ]);
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.starts_with("<!DOCTYPE html>"));
+    assert!(page.contains("<td>deep dip</td>"));
+    assert!(page.contains("Mains voltage can kill"));
+    // The trip map is inline; nothing is fetched from a network (the only address is the
+    // SVG namespace name, which browsers never fetch).
+    assert!(page.contains("<svg") && page.contains("Trip map"));
+    assert!(!page.contains("<?xml"));
+    assert!(!page.contains("<script") && !page.contains("<link"));
+    assert!(!page.contains("src=\"http"));
 }
