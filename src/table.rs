@@ -369,15 +369,55 @@ pub fn run_tests(
     Ok(rows)
 }
 
-fn ms(s: Option<Spread>) -> [String; 3] {
+/// A timing spread as `min / typical / max` in ms (0.1 ms), or `-`.
+fn spread_cell(s: Option<Spread>) -> String {
     match s {
-        Some(s) => [
-            format!("{:.1}", s.min),
-            format!("{:.1}", s.typical),
-            format!("{:.1}", s.max),
-        ],
-        None => ["-".into(), "-".into(), "-".into()],
+        Some(s) => format!("{:.1} / {:.1} / {:.1}", s.min, s.typical, s.max),
+        None => "-".to_string(),
     }
+}
+
+/// The four timing cells of a row: trip, restore, release, operate.
+fn timing_cells(r: &Row) -> [String; 4] {
+    [
+        spread_cell(r.trip_latency_ms),
+        spread_cell(r.restore_latency_ms),
+        spread_cell(r.release_time_ms),
+        spread_cell(r.operate_time_ms),
+    ]
+}
+
+/// The static thresholds as rows: side, trip, reset, hysteresis, what the slow ramp showed.
+fn threshold_rows(t: &StaticThresholds) -> Vec<[String; 5]> {
+    let volts = |x: Option<crate::thresholds::Threshold>| {
+        x.map_or("-".to_string(), |x| {
+            format!("{:.1} V ({:.1}%)", x.volts, x.percent)
+        })
+    };
+    [&t.under, &t.over]
+        .into_iter()
+        .map(|s| {
+            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
+                if r.relay_chatters {
+                    format!("relay chatters ({} armature moves)", r.relay_transitions)
+                } else {
+                    "one trip, one reset".to_string()
+                }
+            });
+            [
+                match s.side {
+                    crate::thresholds::Side::Under => "under-voltage",
+                    crate::thresholds::Side::Over => "over-voltage",
+                }
+                .to_string(),
+                volts(s.trip),
+                volts(s.reset),
+                s.hysteresis_v
+                    .map_or("-".to_string(), |h| format!("{h:.1} V")),
+                ramp,
+            ]
+        })
+        .collect()
 }
 
 /// The table as Markdown: readable in a terminal, pasteable into a datasheet.
@@ -401,25 +441,11 @@ pub fn markdown(table: &Table) -> String {
     );
     let _ = writeln!(out, "|---|---|---|---|---|---|---|---|");
     for r in &table.rows {
-        let cell = |s: Option<Spread>| {
-            let [a, b, c] = ms(s);
-            if a == "-" {
-                "-".to_string()
-            } else {
-                format!("{a} / {b} / {c}")
-            }
-        };
+        let [trip, restore, release, operate] = timing_cells(r);
         let _ = writeln!(
             out,
-            "| {} | {} | `{}` | {} | {} | {} | {} | {} |",
-            r.name,
-            r.source,
-            r.event,
-            r.outcome,
-            cell(r.trip_latency_ms),
-            cell(r.restore_latency_ms),
-            cell(r.release_time_ms),
-            cell(r.operate_time_ms)
+            "| {} | {} | `{}` | {} | {trip} | {restore} | {release} | {operate} |",
+            r.name, r.source, r.event, r.outcome
         );
     }
     if let Some(t) = &table.thresholds {
@@ -430,32 +456,10 @@ pub fn markdown(table: &Table) -> String {
         );
         let _ = writeln!(out, "| side | trip | reset | hysteresis | slow ramp |");
         let _ = writeln!(out, "|---|---|---|---|---|");
+        for [side, trip, reset, hysteresis, ramp] in threshold_rows(t) {
+            let _ = writeln!(out, "| {side} | {trip} | {reset} | {hysteresis} | {ramp} |");
+        }
         for s in [&t.under, &t.over] {
-            let v = |x: Option<crate::thresholds::Threshold>| {
-                x.map_or("-".to_string(), |x| {
-                    format!("{:.1} V ({:.1}%)", x.volts, x.percent)
-                })
-            };
-            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
-                if r.relay_chatters {
-                    format!("relay chatters ({} armature moves)", r.relay_transitions)
-                } else {
-                    "one trip, one reset".to_string()
-                }
-            });
-            let _ = writeln!(
-                out,
-                "| {} | {} | {} | {} | {} |",
-                match s.side {
-                    crate::thresholds::Side::Under => "under-voltage",
-                    crate::thresholds::Side::Over => "over-voltage",
-                },
-                v(s.trip),
-                v(s.reset),
-                s.hysteresis_v
-                    .map_or("-".to_string(), |h| format!("{h:.1} V")),
-                ramp
-            );
             if let Some(note) = &s.note {
                 let _ = writeln!(out, "\n{note}");
             }
@@ -556,27 +560,16 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
          <th>operate time</th></tr>"
     );
     for r in &table.rows {
-        let cell = |s: Option<Spread>| {
-            let [a, b, c] = ms(s);
-            if a == "-" {
-                "-".to_string()
-            } else {
-                format!("{a} / {b} / {c}")
-            }
-        };
+        let [trip, restore, release, operate] = timing_cells(r);
         let _ = writeln!(
             out,
             "<tr><td>{}</td><td>{}</td><td><code>{}</code></td><td>{}</td>\
-             <td class=\"num\">{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
-             <td class=\"num\">{}</td></tr>",
+             <td class=\"num\">{trip}</td><td class=\"num\">{restore}</td>\
+             <td class=\"num\">{release}</td><td class=\"num\">{operate}</td></tr>",
             escape(&r.name),
             escape(&r.source),
             escape(&r.event),
-            escape(&r.outcome),
-            cell(r.trip_latency_ms),
-            cell(r.restore_latency_ms),
-            cell(r.release_time_ms),
-            cell(r.operate_time_ms)
+            escape(&r.outcome)
         );
     }
     let _ = writeln!(out, "</table>");
@@ -588,31 +581,11 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
              <th>slow ramp</th></tr>",
             t.hold_s, t.resolution_v
         );
-        for s in [&t.under, &t.over] {
-            let v = |x: Option<crate::thresholds::Threshold>| {
-                x.map_or("-".to_string(), |x| {
-                    format!("{:.1} V ({:.1}%)", x.volts, x.percent)
-                })
-            };
-            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
-                if r.relay_chatters {
-                    format!("relay chatters ({} armature moves)", r.relay_transitions)
-                } else {
-                    "one trip, one reset".to_string()
-                }
-            });
+        for [side, trip, reset, hysteresis, ramp] in threshold_rows(t) {
             let _ = writeln!(
                 out,
-                "<tr><td>{}</td><td class=\"num\">{}</td><td class=\"num\">{}</td>\
-                 <td class=\"num\">{}</td><td>{}</td></tr>",
-                match s.side {
-                    crate::thresholds::Side::Under => "under-voltage",
-                    crate::thresholds::Side::Over => "over-voltage",
-                },
-                v(s.trip),
-                v(s.reset),
-                s.hysteresis_v
-                    .map_or("-".to_string(), |h| format!("{h:.1} V")),
+                "<tr><td>{side}</td><td class=\"num\">{trip}</td><td class=\"num\">{reset}</td>\
+                 <td class=\"num\">{hysteresis}</td><td>{}</td></tr>",
                 escape(&ramp)
             );
         }
