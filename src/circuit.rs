@@ -29,6 +29,25 @@ pub struct Circuit {
     pub parts: Vec<Part>,
     /// Named parameter sets declared in the file, for listings.
     pub parameter_sets: Vec<ParameterSetInfo>,
+    /// Values that carry a tolerance, in file order.
+    pub tolerances: Vec<Tolerance>,
+}
+
+/// A value of the circuit file that may vary between `min` and `max` (a part's tolerance).
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Tolerance {
+    /// The field, e.g. `part.r_top.resistance` or `parameter_set.rectifier.saturation_current`.
+    pub field: String,
+    /// The value written (used unless a case overrides it).
+    pub nominal: f64,
+    /// Lowest value.
+    pub min: f64,
+    /// Highest value.
+    pub max: f64,
+    /// Where it is written: line and column, from 1.
+    pub line: usize,
+    /// Column, from 1.
+    pub column: usize,
 }
 
 /// A named, reusable parameter set as declared in the file.

@@ -14,7 +14,7 @@ use toml::Spanned;
 use crate::circuit::{
     pin_names_of, BipolarParams, Breakdown, Circuit, ComparatorParams, DiodeParams, MosfetParams,
     NodeId, ParameterSetInfo, Part, PartSpec, RegulatorParams, RelayParams, SwitchParams,
-    TimerParams, TransformerParams, GROUND, THERMAL_VOLTAGE,
+    TimerParams, Tolerance, TransformerParams, GROUND, THERMAL_VOLTAGE,
 };
 use crate::units::{parse_value, Quantity};
 use crate::waveform::Waveform;
@@ -99,9 +99,22 @@ impl fmt::Display for CircuitFileError {
 /// assert_eq!(circuit.nodes, ["gnd", "in", "out"]);
 /// ```
 pub fn parse_circuit(text: &str, path: &str) -> Result<Circuit, CircuitFileError> {
+    parse_circuit_with(text, path, &HashMap::new())
+}
+
+/// As [`parse_circuit`], with some toleranced values replaced: `overrides` maps a field
+/// (as in [`Tolerance::field`]) to the value to use. A field without a tolerance, or a
+/// value outside its tolerance, is reported as a problem of the file.
+pub fn parse_circuit_with(
+    text: &str,
+    path: &str,
+    overrides: &HashMap<String, f64>,
+) -> Result<Circuit, CircuitFileError> {
     let mut reader = Reader {
         text,
         problems: Vec::new(),
+        tolerances: Vec::new(),
+        overrides,
     };
     let circuit = match DeTable::parse(text) {
         Ok(doc) => reader.document(doc.get_ref()),
@@ -112,6 +125,11 @@ pub fn parse_circuit(text: &str, path: &str) -> Result<Circuit, CircuitFileError
             None
         }
     };
+    for field in overrides.keys() {
+        if !reader.tolerances.iter().any(|t| &t.field == field) {
+            reader.problem(0..0, field, "no value with a tolerance has this name");
+        }
+    }
     match circuit {
         Some(c) if reader.problems.is_empty() => Ok(c),
         _ => {
@@ -449,6 +467,10 @@ struct PartOrigin {
 struct Reader<'t> {
     text: &'t str,
     problems: Vec<FileProblem>,
+    /// Values with a tolerance, as read.
+    tolerances: Vec<Tolerance>,
+    /// Values to use instead of the written ones (a tolerance case), by field.
+    overrides: &'t HashMap<String, f64>,
 }
 
 type Entry<'a, 'i> = (
@@ -559,6 +581,7 @@ impl Reader<'_> {
             nodes,
             parts,
             parameter_sets,
+            tolerances: self.tolerances.clone(),
         })
     }
 
@@ -569,6 +592,9 @@ impl Reader<'_> {
         path: &str,
         quantity: Quantity,
     ) -> Option<f64> {
+        if let Some(v) = self.toleranced(value, path, quantity) {
+            return v;
+        }
         let parsed = match value.get_ref() {
             DeValue::Integer(i) => i.as_str().replace('_', "").parse::<f64>().ok(),
             DeValue::Float(x) => x.as_str().replace('_', "").parse::<f64>().ok(),
@@ -597,6 +623,133 @@ impl Reader<'_> {
                 self.problem(value.span(), path, "must be a finite number");
                 None
             }
+        }
+    }
+
+    /// Reads a value with a tolerance: a string `"68k ±1%"` (or `+-1%`, or an absolute
+    /// `±0.1V`), or a table `{ value = "68k", min = "67k", max = "69k" }`. Returns `None`
+    /// when `value` carries no tolerance (the caller reads it as a plain number), else the
+    /// value to use (the written one, or this case's override), after recording it.
+    fn toleranced(
+        &mut self,
+        value: &Spanned<DeValue<'_>>,
+        path: &str,
+        quantity: Quantity,
+    ) -> Option<Option<f64>> {
+        let span = value.span();
+        let (nominal, min, max) = match value.get_ref() {
+            DeValue::String(s) => {
+                let (left, right) = s
+                    .split_once('±')
+                    .or_else(|| s.split_once("+-"))
+                    .or_else(|| s.split_once("+/-"))?;
+                let nominal = match parse_value(left.trim(), quantity) {
+                    Ok(v) => v,
+                    Err(e) => {
+                        self.problem(span, path, e.to_string());
+                        return Some(None);
+                    }
+                };
+                let right = right.trim();
+                let spread = if let Some(p) = right.strip_suffix('%') {
+                    match p.trim().parse::<f64>() {
+                        Ok(p) if p.is_finite() && p >= 0.0 => nominal.abs() * p / 100.0,
+                        _ => {
+                            self.problem(
+                                span,
+                                path,
+                                format!("a tolerance is e.g. ±5% or ±0.1V, found `{right}`"),
+                            );
+                            return Some(None);
+                        }
+                    }
+                } else {
+                    match parse_value(right, quantity) {
+                        Ok(a) if a >= 0.0 => a,
+                        _ => {
+                            self.problem(
+                                span,
+                                path,
+                                format!("a tolerance is e.g. ±5% or ±0.1V, found `{right}`"),
+                            );
+                            return Some(None);
+                        }
+                    }
+                };
+                (nominal, nominal - spread, nominal + spread)
+            }
+            DeValue::Table(table) => {
+                let mut read = |key: &str| -> Option<Option<f64>> {
+                    table
+                        .get(key)
+                        .map(|v| self.number(v, &format!("{path}.{key}"), quantity))
+                };
+                for (key, _) in table.iter() {
+                    if !["value", "min", "max"].contains(&key.get_ref().as_ref()) {
+                        self.problem(
+                            key.span(),
+                            &format!("{path}.{}", key.get_ref()),
+                            "a value with limits takes `value`, `min` and `max`",
+                        );
+                        return Some(None);
+                    }
+                }
+                let (Some(v), Some(lo), Some(hi)) = (read("value"), read("min"), read("max"))
+                else {
+                    self.problem(
+                        span,
+                        path,
+                        "a value with limits needs all of `value`, `min` and `max`",
+                    );
+                    return Some(None);
+                };
+                let (Some(v), Some(lo), Some(hi)) = (v, lo, hi) else {
+                    return Some(None);
+                };
+                if !(lo <= v && v <= hi) {
+                    self.problem(
+                        span,
+                        path,
+                        format!("needs min <= value <= max, got {lo} <= {v} <= {hi}"),
+                    );
+                    return Some(None);
+                }
+                (v, lo, hi)
+            }
+            _ => return None,
+        };
+        if !(min.is_finite() && max.is_finite()) {
+            self.problem(span, path, "must be a finite number");
+            return Some(None);
+        }
+        let start = span.start.min(self.text.len());
+        let line = self.text[..start].matches('\n').count() + 1;
+        let line_start = self.text[..start].rfind('\n').map_or(0, |i| i + 1);
+        let column = self.text[line_start..start].chars().count() + 1;
+        self.tolerances.push(Tolerance {
+            field: path.to_string(),
+            nominal,
+            min,
+            max,
+            line,
+            column,
+        });
+        match self.overrides.get(path) {
+            Some(&v)
+                if v >= min - 1e-12 * min.abs().max(max.abs())
+                    && v <= max + 1e-12 * min.abs().max(max.abs()) =>
+            {
+                Some(Some(v))
+            }
+            Some(&v) => {
+                self.problem(
+                    span,
+                    path,
+                    format!("the case's value {v} lies outside the tolerance {min} .. {max}"),
+                );
+                Some(None)
+            }
+            None => Some(Some(nominal)),
         }
     }
 
@@ -640,12 +793,19 @@ impl Reader<'_> {
                 );
                 continue;
             }
-            let ok = match spec.rule {
+            let rule_ok = |v: f64| match spec.rule {
                 Rule::Any => true,
                 Rule::Positive => v > 0.0,
                 Rule::NonNegative => v >= 0.0,
                 Rule::Fraction => v > 0.0 && v < 1.0,
             };
+            // A tolerance's limits must obey the rule too.
+            let limits = self
+                .tolerances
+                .last()
+                .filter(|t| t.field == field_path)
+                .map(|t| (t.min, t.max));
+            let ok = rule_ok(v) && limits.is_none_or(|(lo, hi)| rule_ok(lo) && rule_ok(hi));
             if !ok {
                 let need = match spec.rule {
                     Rule::Positive => "must be positive",

@@ -591,6 +591,24 @@ fn check(path: Option<&Path>) -> Result<String, String> {
             }
         );
     }
+    if !circuit.tolerances.is_empty() {
+        say!(
+            out,
+            "\nvalues with a tolerance ({}):",
+            circuit.tolerances.len()
+        );
+        for t in &circuit.tolerances {
+            say!(
+                out,
+                "  {:<44} {} (from {} to {}), line {}",
+                t.field,
+                t.nominal,
+                t.min,
+                t.max,
+                t.line
+            );
+        }
+    }
     Ok(out)
 }
 
