@@ -31,5 +31,6 @@ pub mod sweep;
 pub mod synth;
 pub mod table;
 pub mod thresholds;
+pub mod tolerance;
 pub mod units;
 pub mod waveform;

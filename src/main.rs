@@ -9,6 +9,7 @@ use std::fmt::Write as _;
 use std::io::Write as _;
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
+use rayon::prelude::*;
 
 use sagtrip::builtin;
 use sagtrip::circuit::{Circuit, PartSpec};
@@ -109,6 +110,15 @@ struct TableArgs {
     /// Print the table as JSON instead of Markdown.
     #[arg(long)]
     json: bool,
+    /// Also run every corner of the circuit's toleranced values (at most 8 values).
+    #[arg(long)]
+    corners: bool,
+    /// Also run this many Monte Carlo samples of the toleranced values.
+    #[arg(long, value_name = "N")]
+    monte_carlo: Option<usize>,
+    /// Seed of the Monte Carlo samples (the same seed gives the same table).
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
     /// No progress bar.
     #[arg(long)]
     quiet: bool,
@@ -602,9 +612,9 @@ fn check(path: Option<&Path>) -> Result<String, String> {
                 out,
                 "  {:<44} {} (from {} to {}), line {}",
                 t.field,
-                t.nominal,
-                t.min,
-                t.max,
+                significant(t.nominal),
+                significant(t.min),
+                significant(t.max),
                 t.line
             );
         }
@@ -2388,7 +2398,7 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
 }
 
 fn table_command(args: &TableArgs) -> Result<String, String> {
-    use sagtrip::table::{csv, default_plan, markdown, parse_plan, run_tests, Table};
+    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Table};
     let mut out = String::new();
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = EventOptions {
@@ -2441,7 +2451,59 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     let started = Instant::now();
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
-    let runs = plan.tests.len() * plan.phases.len();
+    // Tolerance cases: the nominal circuit, plus corners or Monte Carlo samples.
+    let cases = match (args.corners, args.monte_carlo) {
+        (true, Some(_)) => return Err("give --corners or --monte-carlo, not both".into()),
+        (true, None) => {
+            if circuit.tolerances.is_empty() {
+                return Err(format!(
+                    "--corners: {name} has no values with a tolerance (docs/circuit-format.md)"
+                ));
+            }
+            sagtrip::tolerance::corners(&circuit.tolerances)
+                .map_err(|e| format!("--corners: {e}"))?
+        }
+        (false, Some(n)) => {
+            if circuit.tolerances.is_empty() {
+                return Err(format!(
+                    "--monte-carlo: {name} has no values with a tolerance (docs/circuit-format.md)"
+                ));
+            }
+            sagtrip::tolerance::monte_carlo(&circuit.tolerances, n, args.seed)
+        }
+        (false, None) => vec![sagtrip::tolerance::nominal()],
+    };
+    let tolerance_cases = match (args.corners, args.monte_carlo) {
+        (true, _) => format!(
+            "{} tolerance cases (nominal and every corner of {} values)",
+            cases.len(),
+            circuit.tolerances.len()
+        ),
+        (false, Some(n)) => format!(
+            "{} tolerance cases (nominal and {n} Monte Carlo samples of {} values, uniform \
+             between their limits, seed {})",
+            cases.len(),
+            circuit.tolerances.len(),
+            args.seed
+        ),
+        _ => String::new(),
+    };
+    let text_of_circuit = circuit_text(args.circuit.as_deref())?;
+    let extra: Vec<(sagtrip::circuit::Circuit, sagtrip::scenario::Settled)> = cases[1..]
+        .par_iter()
+        .map(|case| {
+            let c =
+                sagtrip::circuit_file::parse_circuit_with(&text_of_circuit, &name, &case.values)
+                    .map_err(|e| format!("{}: {e}", case.label))?;
+            let s = sagtrip::scenario::settle(&c, &options)
+                .map_err(|e| format!("{name} ({}): {e}", case.label))?;
+            Ok((c, s))
+        })
+        .collect::<Result<_, String>>()?;
+    let mut case_refs: Vec<(&sagtrip::scenario::Settled, &sagtrip::circuit::Circuit)> =
+        vec![(&settled, &circuit)];
+    case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
+    let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
     // The report's trip map: a coarse grid (the sweep command refines it further).
     let map_grid = sagtrip::sweep::Grid {
         levels_pct: (0..10)
@@ -2459,7 +2521,9 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     let bar = if args.quiet || args.json {
         indicatif::ProgressBar::hidden()
     } else {
-        indicatif::ProgressBar::new((runs + map_runs) as u64 + u64::from(plan.thresholds))
+        indicatif::ProgressBar::new(
+            (runs + map_runs) as u64 + u64::from(plan.thresholds) * case_refs.len() as u64,
+        )
     };
     bar.set_style(
         indicatif::ProgressStyle::with_template(
@@ -2467,21 +2531,32 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         )
         .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    let thresholds = if plan.thresholds {
-        let t = sagtrip::thresholds::find(
-            &settled,
-            &circuit,
-            &sagtrip::thresholds::ThresholdOptions::default(),
-        )
-        .map_err(|e| format!("{name}: thresholds: {e}"))?;
-        bar.inc(1);
-        Some(t)
-    } else {
-        None
-    };
-    let rows =
-        run_tests(&settled, &circuit, &plan, &|| bar.inc(1)).map_err(|e| format!("{name}: {e}"))?;
-    bar.finish_and_clear();
+    // The static thresholds of every case (the nominal first); the table shows the
+    // nominal case's and the spread over all.
+    // A failure of the nominal case stops the table; one of another case is reported in
+    // the table's notes and that case left out of the spread.
+    let mut notes: Vec<String> = Vec::new();
+    let mut all_thresholds: Vec<sagtrip::thresholds::StaticThresholds> = Vec::new();
+    if plan.thresholds {
+        for (k, (s, c)) in case_refs.iter().enumerate() {
+            let found =
+                sagtrip::thresholds::find(s, c, &sagtrip::thresholds::ThresholdOptions::default());
+            bar.inc(1);
+            match found {
+                Ok(t) => all_thresholds.push(t),
+                Err(e) if k == 0 => return Err(format!("{name}: thresholds: {e}")),
+                Err(e) => notes.push(format!(
+                    "{}: the static thresholds could not be found ({e}); this case is left \
+                     out of the threshold spread",
+                    cases[k].label
+                )),
+            }
+        }
+    }
+    let rows = sagtrip::table::run_cases(&case_refs, &plan, &|| bar.inc(1))
+        .map_err(|e| format!("{name}: {e}"))?;
+    let threshold_spread =
+        (all_thresholds.len() > 1).then(|| sagtrip::table::ThresholdSpread::of(&all_thresholds));
     let table = Table {
         circuit: circuit.title.clone(),
         plan: plan.title.clone(),
@@ -2489,8 +2564,11 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         frequency_hz: settled.frequency_hz,
         phases_deg: plan.phases.clone(),
         rows,
-        thresholds,
+        thresholds: all_thresholds.into_iter().next(),
         runs,
+        tolerance_cases,
+        threshold_spread,
+        notes,
     };
     let text = markdown(&table);
     if let Some(path) = &args.csv {
@@ -2552,4 +2630,18 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     out.push_str(&text);
     say!(out, "\n({name}; {wall:.1} s wall)");
     Ok(out)
+}
+
+/// The text of the circuit file at `path`, or of the built-in reference guard.
+fn circuit_text(path: Option<&Path>) -> Result<String, String> {
+    match path {
+        Some(path) => std::fs::read_to_string(path)
+            .map_err(|e| format!("cannot read circuit file {}: {e}", path.display())),
+        None => Ok(builtin::REFERENCE_GUARD.to_string()),
+    }
+}
+
+/// `v` rounded to 9 significant digits, printed in its shortest form (no binary noise).
+fn significant(v: f64) -> f64 {
+    format!("{v:.8e}").parse().unwrap_or(v)
 }

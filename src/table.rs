@@ -254,7 +254,7 @@ pub struct Row {
     pub source: String,
     /// The event, compact form.
     pub event: String,
-    /// `rides through`, `trips`, `chatters`, or `trips at` some phases.
+    /// `rides through`, `trips`, `chatters`, or `trips in N of M runs, at` some phases.
     pub outcome: String,
     /// Phases at which it tripped, degrees.
     pub tripped_at_deg: Vec<f64>,
@@ -291,32 +291,51 @@ pub struct Table {
     pub thresholds: Option<StaticThresholds>,
     /// Simulated runs.
     pub runs: usize,
+    /// The tolerance cases: how they were made (empty for the nominal circuit alone).
+    pub tolerance_cases: String,
+    /// The spread of the static thresholds over the tolerance cases.
+    pub threshold_spread: Option<ThresholdSpread>,
+    /// Anything the reader must know: cases that could not be simulated.
+    pub notes: Vec<String>,
 }
 
-fn row(test: &PlanTest, phases: &[f64], runs: &[EventRun]) -> Row {
-    let collect =
-        |f: &dyn Fn(&EventRun) -> Option<f64>| -> Vec<f64> { runs.iter().filter_map(f).collect() };
-    let tripped_at: Vec<f64> = phases
-        .iter()
-        .zip(runs)
-        .filter(|(_, r)| r.measurements.tripped)
-        .map(|(p, _)| *p)
-        .collect();
-    let chattered_at: Vec<f64> = phases
-        .iter()
-        .zip(runs)
-        .filter(|(_, r)| r.measurements.relay_chatter)
-        .map(|(p, _)| *p)
-        .collect();
+/// What a table keeps of one run: its phase and measurements (not its waveforms).
+struct RunOutcome {
+    phase: f64,
+    measurements: crate::measure::Measurements,
+    min_rail_v: Option<f64>,
+}
+
+fn row(test: &PlanTest, runs: &[RunOutcome]) -> Row {
+    let collect = |f: &dyn Fn(&crate::measure::Measurements) -> Option<f64>| -> Vec<f64> {
+        runs.iter().filter_map(|r| f(&r.measurements)).collect()
+    };
+    // The phases (in plan order, once each) at which any case tripped or chattered.
+    let phases_where = |f: &dyn Fn(&RunOutcome) -> bool| -> Vec<f64> {
+        let mut out: Vec<f64> = Vec::new();
+        for r in runs.iter().filter(|r| f(r)) {
+            if !out.contains(&r.phase) {
+                out.push(r.phase);
+            }
+        }
+        out
+    };
+    let tripped_at = phases_where(&|r| r.measurements.tripped);
+    let chattered_at = phases_where(&|r| r.measurements.relay_chatter);
+    let tripped_runs = runs.iter().filter(|r| r.measurements.tripped).count();
     let outcome = if !chattered_at.is_empty() {
         "chatters".to_string()
-    } else if tripped_at.len() == runs.len() {
+    } else if tripped_runs == runs.len() {
         "trips".to_string()
-    } else if tripped_at.is_empty() {
+    } else if tripped_runs == 0 {
         "rides through".to_string()
     } else {
         let list: Vec<String> = tripped_at.iter().map(|p| format!("{p}°")).collect();
-        format!("trips at {}", list.join(", "))
+        format!(
+            "trips in {tripped_runs} of {} runs, at {}",
+            runs.len(),
+            list.join(", ")
+        )
     };
     Row {
         name: test.name.clone(),
@@ -325,10 +344,10 @@ fn row(test: &PlanTest, phases: &[f64], runs: &[EventRun]) -> Row {
         outcome,
         tripped_at_deg: tripped_at,
         chattered_at_deg: chattered_at,
-        trip_latency_ms: Spread::of(&collect(&|r| r.measurements.trip_latency_ms)),
-        restore_latency_ms: Spread::of(&collect(&|r| r.measurements.restore_latency_ms)),
-        release_time_ms: Spread::of(&collect(&|r| r.measurements.release_time_ms)),
-        operate_time_ms: Spread::of(&collect(&|r| r.measurements.operate_time_ms)),
+        trip_latency_ms: Spread::of(&collect(&|m| m.trip_latency_ms)),
+        restore_latency_ms: Spread::of(&collect(&|m| m.restore_latency_ms)),
+        release_time_ms: Spread::of(&collect(&|m| m.release_time_ms)),
+        operate_time_ms: Spread::of(&collect(&|m| m.operate_time_ms)),
         min_rail_v: runs.iter().filter_map(|r| r.min_rail_v).reduce(f64::min),
     }
 }
@@ -341,32 +360,86 @@ pub fn run_tests(
     plan: &Plan,
     done: &(dyn Fn() + Sync),
 ) -> Result<Vec<Row>, String> {
-    let jobs: Vec<(usize, f64)> = (0..plan.tests.len())
-        .flat_map(|t| plan.phases.iter().map(move |&p| (t, p)))
-        .collect();
-    let results: Vec<Result<EventRun, String>> = jobs
+    run_cases(&[(settled, circuit)], plan, done)
+}
+
+/// Runs every test of `plan` at every phase for every tolerance case (each case a settled
+/// protector and its circuit), all in parallel; each row's spreads cover every phase and
+/// case. A test at some phases trips "at" those phases if it trips there in any case.
+pub fn run_cases(
+    cases: &[(&Settled, &Circuit)],
+    plan: &Plan,
+    done: &(dyn Fn() + Sync),
+) -> Result<Vec<Row>, String> {
+    let mut jobs: Vec<(usize, usize, f64)> = Vec::new();
+    for t in 0..plan.tests.len() {
+        for c in 0..cases.len() {
+            for &p in &plan.phases {
+                jobs.push((t, c, p));
+            }
+        }
+    }
+    let results: Vec<Result<RunOutcome, String>> = jobs
         .par_iter()
-        .map(|&(t, phase)| {
+        .map(|&(t, c, phase)| {
             let test = &plan.tests[t];
             let mut profile = test.profile.clone();
             profile.phase_deg = phase;
+            let (settled, circuit) = cases[c];
             let run = settled
                 .run(circuit, &profile)
-                .map_err(|e: ScenarioError| format!("test {} at {phase}°: {e}", test.name));
+                .map(|r: EventRun| RunOutcome {
+                    phase,
+                    measurements: r.measurements,
+                    min_rail_v: r.min_rail_v,
+                })
+                .map_err(|e: ScenarioError| {
+                    format!("test {} at {phase}° (case {}): {e}", test.name, c + 1)
+                });
             done();
             run
         })
         .collect();
+    let per_test = cases.len() * plan.phases.len();
     let mut runs = results.into_iter();
     let mut rows = Vec::with_capacity(plan.tests.len());
     for test in &plan.tests {
-        let mine: Vec<EventRun> = runs
-            .by_ref()
-            .take(plan.phases.len())
-            .collect::<Result<_, _>>()?;
-        rows.push(row(test, &plan.phases, &mine));
+        let mine: Vec<RunOutcome> = runs.by_ref().take(per_test).collect::<Result<_, _>>()?;
+        rows.push(row(test, &mine));
     }
     Ok(rows)
+}
+
+/// The spread of the static thresholds over tolerance cases, volts.
+#[derive(Clone, Debug, Serialize)]
+pub struct ThresholdSpread {
+    /// Cases whose thresholds were found.
+    pub cases: usize,
+    /// Under-voltage trip.
+    pub under_trip_v: Option<Spread>,
+    /// Under-voltage reset.
+    pub under_reset_v: Option<Spread>,
+    /// Over-voltage trip.
+    pub over_trip_v: Option<Spread>,
+    /// Over-voltage reset.
+    pub over_reset_v: Option<Spread>,
+}
+
+impl ThresholdSpread {
+    /// The spread of each threshold over `all` (one per case).
+    pub fn of(all: &[StaticThresholds]) -> ThresholdSpread {
+        let get = |f: &dyn Fn(&StaticThresholds) -> Option<crate::thresholds::Threshold>| {
+            let v: Vec<f64> = all.iter().filter_map(|t| f(t).map(|x| x.volts)).collect();
+            Spread::of(&v)
+        };
+        ThresholdSpread {
+            cases: all.len(),
+            under_trip_v: get(&|t| t.under.trip),
+            under_reset_v: get(&|t| t.under.reset),
+            over_trip_v: get(&|t| t.over.trip),
+            over_reset_v: get(&|t| t.over.reset),
+        }
+    }
 }
 
 /// A timing spread as `min / typical / max` in ms (0.1 ms), or `-`.
@@ -420,21 +493,54 @@ fn threshold_rows(t: &StaticThresholds) -> Vec<[String; 5]> {
         .collect()
 }
 
-/// The table as Markdown: readable in a terminal, pasteable into a datasheet.
-pub fn markdown(table: &Table) -> String {
-    let mut out = String::new();
+/// The sentence under the heading: plan, supply, phases, cases, runs.
+fn summary_sentence(table: &Table) -> String {
     let phases: Vec<String> = table.phases_deg.iter().map(|p| format!("{p}°")).collect();
-    let _ = writeln!(out, "# {}\n", table.circuit);
-    let _ = writeln!(
-        out,
-        "{} on a {:.0} V {:.0} Hz supply; each test at {} start phase; {} simulated runs. \
-         Times in ms as min / typical / max over the phases (typical: the median).\n",
+    let (cases, over) = if table.tolerance_cases.is_empty() {
+        (String::new(), "the phases")
+    } else {
+        (
+            format!(" and {}", table.tolerance_cases),
+            "the phases and tolerance cases",
+        )
+    };
+    format!(
+        "{} on a {:.0} V {:.0} Hz supply; each test at {} start phase{cases}; {} simulated \
+         runs. Times in ms as min / typical / max over {over} (typical: the median).",
         table.plan,
         table.nominal_rms_v,
         table.frequency_hz,
         phases.join(", "),
         table.runs
-    );
+    )
+}
+
+/// The threshold spread as rows: threshold, min, typical, max (volts).
+fn spread_rows(t: &ThresholdSpread) -> Vec<[String; 4]> {
+    [
+        ("under-voltage trip", t.under_trip_v),
+        ("under-voltage reset", t.under_reset_v),
+        ("over-voltage trip", t.over_trip_v),
+        ("over-voltage reset", t.over_reset_v),
+    ]
+    .into_iter()
+    .map(|(name, s)| match s {
+        Some(s) => [
+            name.to_string(),
+            format!("{:.1} V", s.min),
+            format!("{:.1} V", s.typical),
+            format!("{:.1} V", s.max),
+        ],
+        None => [name.to_string(), "-".into(), "-".into(), "-".into()],
+    })
+    .collect()
+}
+
+/// The table as Markdown: readable in a terminal, pasteable into a datasheet.
+pub fn markdown(table: &Table) -> String {
+    let mut out = String::new();
+    let _ = writeln!(out, "# {}\n", table.circuit);
+    let _ = writeln!(out, "{}\n", summary_sentence(table));
     let _ = writeln!(
         out,
         "| test | source | event | outcome | trip latency | restore latency | release time | operate time |"
@@ -464,6 +570,21 @@ pub fn markdown(table: &Table) -> String {
                 let _ = writeln!(out, "\n{note}");
             }
         }
+    }
+    if let Some(spread) = &table.threshold_spread {
+        let _ = writeln!(
+            out,
+            "\nOver the {} tolerance cases (the table above is the nominal case):\n",
+            spread.cases
+        );
+        let _ = writeln!(out, "| threshold | min | typical | max |");
+        let _ = writeln!(out, "|---|---|---|---|");
+        for [name, lo, typ, hi] in spread_rows(spread) {
+            let _ = writeln!(out, "| {name} | {lo} | {typ} | {hi} |");
+        }
+    }
+    for note in &table.notes {
+        let _ = writeln!(out, "\nNote: {note}");
     }
     out
 }
@@ -522,7 +643,6 @@ fn escape(text: &str) -> String {
 /// safety caution, the table, the static thresholds and the given SVG figures inline.
 pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
     let mut out = String::new();
-    let phases: Vec<String> = table.phases_deg.iter().map(|p| format!("{p}°")).collect();
     let _ = write!(
         out,
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\">\n\
@@ -537,16 +657,7 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
          </style>\n</head>\n<body>\n<h1>{title}</h1>\n",
         title = escape(&table.circuit)
     );
-    let _ = writeln!(
-        out,
-        "<p>{} on a {:.0} V {:.0} Hz supply; each test at {} start phase; {} simulated runs. \
-         Times in ms as min / typical / max over the phases (typical: the median).</p>",
-        escape(&table.plan),
-        table.nominal_rms_v,
-        table.frequency_hz,
-        phases.join(", "),
-        table.runs
-    );
+    let _ = writeln!(out, "<p>{}</p>", escape(&summary_sentence(table)));
     let _ = writeln!(
         out,
         "<p class=\"caution\"><strong>Safety.</strong> Mains voltage can kill. These are \
@@ -595,6 +706,25 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
                 let _ = writeln!(out, "<p>{}</p>", escape(note));
             }
         }
+    }
+    if let Some(spread) = &table.threshold_spread {
+        let _ = writeln!(
+            out,
+            "<p>Over the {} tolerance cases (the table above is the nominal case):</p>\n\
+             <table>\n<tr><th>threshold</th><th>min</th><th>typical</th><th>max</th></tr>",
+            spread.cases
+        );
+        for [name, lo, typ, hi] in spread_rows(spread) {
+            let _ = writeln!(
+                out,
+                "<tr><td>{name}</td><td class=\"num\">{lo}</td><td class=\"num\">{typ}</td>\
+                 <td class=\"num\">{hi}</td></tr>"
+            );
+        }
+        let _ = writeln!(out, "</table>");
+    }
+    for note in &table.notes {
+        let _ = writeln!(out, "<p><strong>Note:</strong> {}</p>", escape(note));
     }
     for (caption, svg) in figures {
         // An SVG document's XML declaration is not allowed inside HTML.

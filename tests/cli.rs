@@ -669,3 +669,51 @@ fn table_writes_a_self_contained_html_report() {
     assert!(!page.contains("<script") && !page.contains("<link"));
     assert!(!page.contains("src=\"http"));
 }
+
+#[test]
+fn table_over_tolerance_cases_is_reproducible() {
+    let circuit = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/examples/guard-230v-tolerances.toml"
+    );
+    let plan = temp_path("tiny-plan.toml");
+    std::fs::write(
+        &plan,
+        "thresholds = false\nphases = [0]\n[[test]]\nname = \"deep dip\"\nevent = \"dip:40%:10cyc\"\n",
+    )
+    .unwrap();
+    let csv = |name: &str, extra: &[&str]| {
+        let path = temp_path(name);
+        let mut args = vec![
+            "table",
+            "--circuit",
+            circuit,
+            "--plan",
+            plan.to_str().unwrap(),
+            "--csv",
+            path.to_str().unwrap(),
+            "--quiet",
+        ];
+        args.extend_from_slice(extra);
+        let out = sagtrip(&args);
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        (
+            String::from_utf8_lossy(&out.stdout).to_string(),
+            std::fs::read_to_string(path).unwrap(),
+        )
+    };
+    let (text, one) = csv("mc1.csv", &["--monte-carlo", "3", "--seed", "5"]);
+    assert!(text.contains("4 tolerance cases (nominal and 3 Monte Carlo samples of 4 values"));
+    let (_, two) = csv("mc2.csv", &["--monte-carlo", "3", "--seed", "5"]);
+    assert_eq!(one, two);
+    let (text, _) = csv("corners.csv", &["--corners"]);
+    assert!(text.contains("17 tolerance cases (nominal and every corner of 4 values)"));
+    // Tolerance cases need tolerances.
+    let out = sagtrip(&["table", "--corners", "--plan", plan.to_str().unwrap()]);
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("no values with a tolerance"));
+}

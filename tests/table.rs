@@ -150,3 +150,50 @@ fn plan_file_mistakes_are_reported_with_their_place() {
     let bad = "thresholds = false\n";
     assert!(parse_plan(bad, "plan.toml", 50.0).is_err());
 }
+
+/// The reference guard with a tolerance on its lower sense resistor.
+fn guard_with_r_bot(tolerance: &str) -> String {
+    let text = sagtrip::builtin::REFERENCE_GUARD;
+    assert_eq!(text.matches("resistance = \"15k\"").count(), 1);
+    text.replace(
+        "resistance = \"15k\"",
+        &format!("resistance = \"15k {tolerance}\""),
+    )
+}
+
+fn trip_spread_over_corners(text: &str) -> Spread {
+    use sagtrip::circuit_file::parse_circuit_with;
+    let nominal = circuit(text);
+    let cases = sagtrip::tolerance::corners(&nominal.tolerances).unwrap();
+    let built: Vec<(sagtrip::circuit::Circuit, sagtrip::scenario::Settled)> = cases
+        .iter()
+        .map(|case| {
+            let c = parse_circuit_with(text, "guard", &case.values).unwrap();
+            let s = settle(&c, &EventOptions::default()).unwrap();
+            (c, s)
+        })
+        .collect();
+    let refs: Vec<_> = built.iter().map(|(c, s)| (s, c)).collect();
+    let plan = parse_plan(
+        "thresholds = false\nphases = [0]\n[[test]]\nname = \"d\"\nevent = \"dip:40%:10cyc\"\n",
+        "p.toml",
+        50.0,
+    )
+    .unwrap();
+    let rows = sagtrip::table::run_cases(&refs, &plan, &|| {}).unwrap();
+    rows[0].trip_latency_ms.unwrap()
+}
+
+#[test]
+fn widening_a_tolerance_never_narrows_the_spread() {
+    // A smaller r_bot lowers the sensed voltage, so a dip reaches the under-voltage
+    // threshold sooner: the trip latency moves monotonically with r_bot (the divider rule),
+    // and the corners of a wider tolerance enclose those of a narrower one.
+    let narrow = trip_spread_over_corners(&guard_with_r_bot("±1%"));
+    let wide = trip_spread_over_corners(&guard_with_r_bot("±5%"));
+    assert!(
+        wide.min <= narrow.min && narrow.max <= wide.max,
+        "{narrow:?} {wide:?}"
+    );
+    assert!(wide.max - wide.min > narrow.max - narrow.min);
+}
