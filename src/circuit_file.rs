@@ -479,14 +479,21 @@ type Entry<'a, 'i> = (
 );
 
 impl Reader<'_> {
+    /// Line and column (from 1, in characters) of byte `offset`.
+    fn place(&self, offset: usize) -> (usize, usize) {
+        let start = offset.min(self.text.len());
+        let line_start = self.text[..start].rfind('\n').map_or(0, |i| i + 1);
+        let line = self.text[..start].matches('\n').count() + 1;
+        (line, self.text[line_start..start].chars().count() + 1)
+    }
+
     fn problem(&mut self, span: Range<usize>, field: &str, message: impl Into<String>) {
         let start = span.start.min(self.text.len());
         let line_start = self.text[..start].rfind('\n').map_or(0, |i| i + 1);
         let line_end = self.text[start..]
             .find('\n')
             .map_or(self.text.len(), |i| start + i);
-        let line = self.text[..start].matches('\n').count() + 1;
-        let column = self.text[line_start..start].chars().count() + 1;
+        let (line, column) = self.place(start);
         let end = span.end.clamp(start, line_end);
         let marker_len = self.text[start..end].chars().count().max(1);
         self.problems.push(FileProblem {
@@ -722,10 +729,7 @@ impl Reader<'_> {
             self.problem(span, path, "must be a finite number");
             return Some(None);
         }
-        let start = span.start.min(self.text.len());
-        let line = self.text[..start].matches('\n').count() + 1;
-        let line_start = self.text[..start].rfind('\n').map_or(0, |i| i + 1);
-        let column = self.text[line_start..start].chars().count() + 1;
+        let (line, column) = self.place(span.start);
         self.tolerances.push(Tolerance {
             field: path.to_string(),
             nominal,
@@ -734,13 +738,10 @@ impl Reader<'_> {
             line,
             column,
         });
+        // Limits computed from a percentage may differ from a case's value in the last bit.
+        let slack = 1e-12 * min.abs().max(max.abs());
         match self.overrides.get(path) {
-            Some(&v)
-                if v >= min - 1e-12 * min.abs().max(max.abs())
-                    && v <= max + 1e-12 * min.abs().max(max.abs()) =>
-            {
-                Some(Some(v))
-            }
+            Some(&v) if (min - slack..=max + slack).contains(&v) => Some(Some(v)),
             Some(&v) => {
                 self.problem(
                     span,

@@ -443,21 +443,24 @@ fn main() -> ExitCode {
 /// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
 /// to report it under.
 fn load_circuit(path: Option<&Path>) -> Result<(Circuit, String), String> {
-    match path {
-        Some(path) => {
-            let text = std::fs::read_to_string(path)
-                .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?;
-            let name = path.display().to_string();
-            let circuit = parse_circuit(&text, &name).map_err(|e| e.to_string())?;
-            Ok((circuit, name))
-        }
-        None => {
-            let name = builtin::REFERENCE_GUARD_NAME.to_string();
-            let circuit =
-                parse_circuit(builtin::REFERENCE_GUARD, &name).map_err(|e| e.to_string())?;
-            Ok((circuit, name))
-        }
-    }
+    load_circuit_and_text(path).map(|(circuit, name, _)| (circuit, name))
+}
+
+/// As [`load_circuit`], also returning the file's text (to build tolerance cases from).
+fn load_circuit_and_text(path: Option<&Path>) -> Result<(Circuit, String, String), String> {
+    let (text, name) = match path {
+        Some(path) => (
+            std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?,
+            path.display().to_string(),
+        ),
+        None => (
+            builtin::REFERENCE_GUARD.to_string(),
+            builtin::REFERENCE_GUARD_NAME.to_string(),
+        ),
+    };
+    let circuit = parse_circuit(&text, &name).map_err(|e| e.to_string())?;
+    Ok((circuit, name, text))
 }
 
 fn part_summary(spec: &PartSpec) -> String {
@@ -716,11 +719,7 @@ fn run(args: &RunArgs) -> Result<String, String> {
             "wall_time_s": wall,
             "trace": args.trace.as_ref().map(|p| p.display().to_string()),
         });
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
 
@@ -941,15 +940,7 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
         }
     }
     if let Some(path) = &args.plot {
-        if !matches!(
-            path.extension().and_then(|e| e.to_str()),
-            Some("svg" | "png")
-        ) {
-            return Err(format!(
-                "--plot {}: the file name must end in .svg or .png",
-                path.display()
-            ));
-        }
+        check_plot_name(path)?;
     }
     let mains =
         find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
@@ -1013,11 +1004,7 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
                 map.extend(extra);
             }
         }
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     let ms = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:.2} ms"));
@@ -1591,11 +1578,7 @@ fn report_sweep(
         )?;
     }
     if json {
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     say!(out, "{}: {}", r.name, r.title);
@@ -1803,10 +1786,7 @@ fn write_plot(
             write_atomic(path, |w| w.write_all(text.as_bytes()))
                 .map_err(|e| format!("cannot write plot {}: {e}", path.display()))
         }
-        _ => Err(format!(
-            "--plot {}: the file name must end in .svg or .png",
-            path.display()
-        )),
+        _ => check_plot_name(path),
     }
 }
 
@@ -1994,11 +1974,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
             "measured_frequency_hz": { "mean": fmean, "min": fmin, "max": fmax },
             "events": d.events,
         });
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     say!(
@@ -2146,11 +2122,7 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
             "stats": replay.stats,
             "wall_time_s": wall,
         });
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     say!(out, "{name}: {}", circuit.title);
@@ -2236,15 +2208,7 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
         ..EventOptions::default()
     };
     if let Some(path) = &args.plot {
-        if !matches!(
-            path.extension().and_then(|e| e.to_str()),
-            Some("svg" | "png")
-        ) {
-            return Err(format!(
-                "--plot {}: the file name must end in .svg or .png",
-                path.display()
-            ));
-        }
+        check_plot_name(path)?;
     }
     let started = Instant::now();
     let settled =
@@ -2282,11 +2246,7 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
         let mut value = serde_json::to_value(&result).unwrap_or_default();
         value["circuit"] = serde_json::json!(name);
         value["wall_time_s"] = serde_json::json!(wall);
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     say!(out, "{name}: {}", circuit.title);
@@ -2400,7 +2360,7 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
 fn table_command(args: &TableArgs) -> Result<String, String> {
     use sagtrip::table::{csv, default_plan, markdown, parse_plan, Table};
     let mut out = String::new();
-    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = EventOptions {
         nominal: args.nominal.as_deref().map(nominal_option).transpose()?,
         ..EventOptions::default()
@@ -2488,7 +2448,6 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         ),
         _ => String::new(),
     };
-    let text_of_circuit = circuit_text(args.circuit.as_deref())?;
     let extra: Vec<(sagtrip::circuit::Circuit, sagtrip::scenario::Settled)> = cases[1..]
         .par_iter()
         .map(|case| {
@@ -2620,11 +2579,7 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     if args.json {
         let mut value = serde_json::to_value(&table).unwrap_or_default();
         value["wall_time_s"] = serde_json::json!(wall);
-        say!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&value).unwrap_or_default()
-        );
+        say!(out, "{}", pretty_json(&value));
         return Ok(out);
     }
     out.push_str(&text);
@@ -2632,16 +2587,23 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     Ok(out)
 }
 
-/// The text of the circuit file at `path`, or of the built-in reference guard.
-fn circuit_text(path: Option<&Path>) -> Result<String, String> {
-    match path {
-        Some(path) => std::fs::read_to_string(path)
-            .map_err(|e| format!("cannot read circuit file {}: {e}", path.display())),
-        None => Ok(builtin::REFERENCE_GUARD.to_string()),
-    }
-}
-
 /// `v` rounded to 9 significant digits, printed in its shortest form (no binary noise).
 fn significant(v: f64) -> f64 {
     format!("{v:.8e}").parse().unwrap_or(v)
+}
+
+/// A JSON value as indented text.
+fn pretty_json(value: &serde_json::Value) -> String {
+    serde_json::to_string_pretty(value).unwrap_or_default()
+}
+
+/// Refuses a plot file name that is neither `.svg` nor `.png` (before any work is done).
+fn check_plot_name(path: &Path) -> Result<(), String> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("svg" | "png") => Ok(()),
+        _ => Err(format!(
+            "--plot {}: the file name must end in .svg or .png",
+            path.display()
+        )),
+    }
 }

@@ -19,6 +19,21 @@ use crate::scenario::EventRun;
 
 static FONT: Once = Once::new();
 
+/// Draws the series legend of `chart` at `position`, in the style of every sagtrip plot.
+fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
+    chart: &mut ChartContext<'a, DB, CT>,
+    position: SeriesLabelPosition,
+) -> Result<(), String> {
+    chart
+        .configure_series_labels()
+        .position(position)
+        .label_font(("sans-serif", 12))
+        .background_style(WHITE.mix(0.85))
+        .border_style(BLACK.mix(0.3))
+        .draw()
+        .map_err(|e| format!("plot: {e:?}"))
+}
+
 /// Registers the embedded font as "sans-serif" (once per process).
 fn register_font() {
     FONT.call_once(|| {
@@ -351,14 +366,7 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
                     .map_err(e)?;
             }
         }
-        chart
-            .configure_series_labels()
-            .position(SeriesLabelPosition::UpperRight)
-            .label_font(("sans-serif", 12))
-            .background_style(WHITE.mix(0.85))
-            .border_style(BLACK.mix(0.3))
-            .draw()
-            .map_err(e)?;
+        legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     }
     root.present().map_err(e)?;
     Ok(())
@@ -577,14 +585,7 @@ fn draw_map<DB: DrawingBackend>(
             )
             .map_err(e)?;
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerRight)
-        .label_font(("sans-serif", 12))
-        .background_style(WHITE.mix(0.9))
-        .border_style(BLACK.mix(0.3))
-        .draw()
-        .map_err(e)?;
+    legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     root.present().map_err(e)?;
     Ok(())
 }
@@ -722,14 +723,7 @@ fn draw_recording<DB: DrawingBackend>(
         .map_err(e)?
         .label("Urms(1/2)")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], COLORS[0]));
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerLeft)
-        .label_font(("sans-serif", 12))
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK.mix(0.3))
-        .draw()
-        .map_err(e)?;
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)?;
 
     // The events on the ITI (CBEMA) curve.
     let mut chart = ChartBuilder::on(&bottom)
@@ -804,14 +798,7 @@ fn draw_recording<DB: DrawingBackend>(
             .label("event, protector tripped")
             .legend(|(x, y)| TriangleMarker::new((x + 8, y), 6, RED.filled()));
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperRight)
-        .label_font(("sans-serif", 12))
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK.mix(0.3))
-        .draw()
-        .map_err(e)?;
+    legend(&mut chart, SeriesLabelPosition::UpperRight)?;
     root.present().map_err(e)?;
     Ok(())
 }
@@ -942,14 +929,7 @@ fn draw_thresholds<DB: DrawingBackend>(
             )
         }))
         .map_err(e)?;
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerRight)
-        .label_font(("sans-serif", 12))
-        .background_style(WHITE.mix(0.85))
-        .border_style(BLACK.mix(0.3))
-        .draw()
-        .map_err(e)?;
+    legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     root.present().map_err(e)?;
     Ok(())
 }
