@@ -352,3 +352,65 @@ fn diode_string() -> String {
     }
     text
 }
+
+#[test]
+fn a_sliver_before_a_breakpoint_is_crossed_without_a_solve() {
+    // Callers stop at times built by repeated addition (one mains cycle at a time), which
+    // can fall a few ulps before a breakpoint of the source. Over such a sliver the
+    // companion conductances 2C/h are so large that their rounding swamps every current
+    // tolerance; the engine crosses it without a solve and restarts at the breakpoint,
+    // and the run agrees with one that never stopped there.
+    let circuit = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let mains = circuit.part("mains").unwrap();
+    let envelope = sagtrip::profile::resolve("dip:40%:10cyc", 50.0, 5e-6)
+        .unwrap()
+        .envelope(50.0);
+    let waveform = sagtrip::waveform::Waveform::Disturbed {
+        amplitude: 230.0 * 2f64.sqrt(),
+        frequency_hz: 50.0,
+        phase_deg: 0.0,
+        onset_s: 0.41,
+        envelope,
+    };
+    let breakpoint = waveform.next_breakpoint(0.2);
+    assert!(breakpoint > 0.4 && breakpoint < 0.42, "{breakpoint}");
+    let mut sim = Simulator::new(&circuit, settings());
+    sim.set_source_waveform(mains, waveform).unwrap();
+    let mut state = sim.start(Start::OperatingPoint).unwrap();
+    sim.advance(&mut state, 0.3, &mut ()).unwrap();
+    let mut straight = state.clone();
+    let mut stopped = state;
+    sim.advance(&mut stopped, breakpoint - 1.78e-13, &mut ())
+        .unwrap();
+    let (iterations, restarts) = (stopped.stats.newton_iterations, stopped.stats.restarts);
+    sim.advance(&mut stopped, breakpoint, &mut ()).unwrap();
+    assert_eq!(stopped.time, breakpoint);
+    assert_eq!(stopped.stats.newton_iterations, iterations);
+    assert_eq!(stopped.stats.restarts, restarts + 1);
+    sim.advance(&mut stopped, 0.6, &mut ()).unwrap();
+    sim.advance(&mut straight, 0.6, &mut ()).unwrap();
+    let vcc = circuit.node("vcc").unwrap();
+    let (a, b) = (stopped.node_voltage(vcc), straight.node_voltage(vcc));
+    assert!((a - b).abs() < 1e-3 * b.abs(), "{a} vs {b}");
+}
+
+#[test]
+fn steps_down_to_the_smallest_allowed_converge() {
+    // Over a 1 ps step (the default smallest step) the reference guard's reservoir
+    // capacitor has a companion conductance 2C/h near 1e9 S: its node equation is known
+    // only to a few ulps of 1e10 A, coarser than the current tolerance. Newton must accept
+    // a residual at that rounding level instead of iterating until it gives up.
+    let circuit = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let mut sim = Simulator::new(&circuit, settings());
+    let mut state = sim.start(Start::OperatingPoint).unwrap();
+    sim.advance(&mut state, 0.3, &mut ()).unwrap();
+    let vcc = circuit.node("vcc").unwrap();
+    let before = state.node_voltage(vcc);
+    for h in [1e-12, 3e-12, 1e-11] {
+        sim.set_max_step(h);
+        let t = state.time;
+        sim.advance(&mut state, t + 40.0 * h, &mut ()).unwrap();
+    }
+    let after = state.node_voltage(vcc);
+    assert!((after - before).abs() < 1e-6, "{before} -> {after}");
+}

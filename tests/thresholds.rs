@@ -4,6 +4,7 @@
 mod common;
 
 use common::circuit;
+use sagtrip::circuit::Circuit;
 use sagtrip::probe::Probe;
 use sagtrip::profile::parse_spec;
 use sagtrip::scenario::{settle, EventOptions};
@@ -16,16 +17,15 @@ fn guard_thresholds() -> StaticThresholds {
 }
 
 /// The lowest and highest voltage of node `name` over the settled cycles before an event.
-fn settled_extremes(name: &str) -> (f64, f64) {
-    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+fn settled_extremes(guard: &Circuit, name: &str) -> (f64, f64) {
     let node = guard.node(name).unwrap();
     let options = EventOptions {
         probes: vec![Probe::Voltage { node }],
         ..EventOptions::default()
     };
-    let settled = settle(&guard, &options).unwrap();
+    let settled = settle(guard, &options).unwrap();
     let run = settled
-        .run(&guard, &parse_spec("gap:1cyc", 5e-6).unwrap())
+        .run(guard, &parse_spec("gap:1cyc", 5e-6).unwrap())
         .unwrap();
     let trace = &run.trace;
     let column = trace.column(&Probe::Voltage { node }).unwrap();
@@ -41,27 +41,37 @@ fn settled_extremes(name: &str) -> (f64, f64) {
     (lo, hi)
 }
 
-#[test]
-fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
-    let t = guard_thresholds();
-    // Hand calculation (Ohm's law and the divider rule, from memory):
-    // the zener: 5.1 V at 5 mA with 10 ohm slope, fed from the 12 V rail through 2.2k and
-    // loaded by the 1.8k + 2.4k + 5.6k = 9.8k reference divider.
-    let mut vz = 5.1;
+/// Under- and over-voltage trip levels of the reference guard (or a variant with other
+/// zener, r_top and r_bot values) by hand, volts RMS.
+///
+/// Ohm's law and the divider rule (from memory): the zener, `vz0` at 5 mA with a 10 ohm
+/// slope, is fed from the 12 V rail through 2.2k and loaded by the 1.8k + 2.4k + 5.6k =
+/// 9.8k reference divider; the comparators switch when sense_raw crosses
+/// ref * (r_top + r_bot) / r_bot. The peak detector's output scales with the line voltage:
+/// the under-voltage comparator first fires when the ripple's valley reaches ref_lo, the
+/// over-voltage one when the peak reaches ref_hi; the scale is taken from the settled run
+/// at nominal, 230 V (transformer regulation is not derived by hand).
+fn hand_thresholds(guard: &Circuit, vz0: f64, r_top: f64, r_bot: f64) -> (f64, f64) {
+    let mut vz = vz0;
     for _ in 0..20 {
         let iz = (12.0 - vz) / 2200.0 - vz / 9800.0;
-        vz = 5.1 + 10.0 * (iz - 5e-3);
+        vz = vz0 + 10.0 * (iz - 5e-3);
     }
     let ref_lo = vz * 5600.0 / 9800.0;
     let ref_hi = vz * (2400.0 + 5600.0) / 9800.0;
-    // The sense divider 68k / 15k: the comparators switch when sense_raw crosses
-    // ref * 83 / 15.
-    let (raw_min, raw_max) = settled_extremes("sense_raw");
-    // The peak detector's output scales with the line voltage: the under-voltage
-    // comparator first fires when the ripple's valley reaches ref_lo, the over-voltage one
-    // when the peak reaches ref_hi. Scale measured at nominal, 230 V.
-    let uv_hand = 230.0 * ref_lo * 83.0 / 15.0 / raw_min;
-    let ov_hand = 230.0 * ref_hi * 83.0 / 15.0 / raw_max;
+    let scale = (r_top + r_bot) / r_bot;
+    let (raw_min, raw_max) = settled_extremes(guard, "sense_raw");
+    (
+        230.0 * ref_lo * scale / raw_min,
+        230.0 * ref_hi * scale / raw_max,
+    )
+}
+
+#[test]
+fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
+    let t = guard_thresholds();
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let (uv_hand, ov_hand) = hand_thresholds(&guard, 5.1, 68e3, 15e3);
     let uv = t.under.trip.unwrap().volts;
     let ov = t.over.trip.unwrap().volts;
     eprintln!(
@@ -133,4 +143,36 @@ fn the_hysteresis_variant_shows_a_wider_hysteresis() {
         base.under.hysteresis_v.unwrap()
     );
     assert!(t.under.reset.unwrap().volts > t.under.trip.unwrap().volts);
+}
+
+#[test]
+fn the_lowest_tolerance_corner_agrees_with_a_hand_calculation() {
+    // Every toleranced value of the tolerance example at its lower limit (corner 1): the
+    // search once stopped here on a Newton failure over a step of a fraction of a
+    // picosecond left before a breakpoint by rounding.
+    let path = "examples/guard-230v-tolerances.toml";
+    let text = std::fs::read_to_string(path).unwrap();
+    let nominal = sagtrip::circuit_file::parse_circuit(&text, path).unwrap();
+    let lowest = &sagtrip::tolerance::corners(&nominal.tolerances).unwrap()[1];
+    let limit = |field: &str| lowest.values[field];
+    let guard = sagtrip::circuit_file::parse_circuit_with(&text, path, &lowest.values).unwrap();
+    let settled = settle(&guard, &EventOptions::default()).unwrap();
+    let t = find(&settled, &guard, &ThresholdOptions::default()).unwrap();
+    let (uv_hand, ov_hand) = hand_thresholds(
+        &guard,
+        limit("part.dz_ref.breakdown_voltage"),
+        limit("part.r_top.resistance"),
+        limit("part.r_bot.resistance"),
+    );
+    let uv = t.under.trip.unwrap().volts;
+    let ov = t.over.trip.unwrap().volts;
+    // The bar for the hand calculation: within 3%.
+    assert!(
+        (uv - uv_hand).abs() / uv_hand < 0.03,
+        "under-voltage trip {uv:.1} V, hand {uv_hand:.1} V"
+    );
+    assert!(
+        (ov - ov_hand).abs() / ov_hand < 0.03,
+        "over-voltage trip {ov:.1} V, hand {ov_hand:.1} V"
+    );
 }
