@@ -110,9 +110,14 @@ struct TableArgs {
     /// Print the table as JSON instead of Markdown.
     #[arg(long)]
     json: bool,
-    /// Also run every corner of the circuit's toleranced values (at most 8 values).
+    /// Also run every corner of the circuit's toleranced values; with more than 8 values,
+    /// the 8 with the largest effect found by screening (see --screen).
     #[arg(long)]
     corners: bool,
+    /// With --corners: screen the values first (each alone at its limits) and vary only the
+    /// K with the largest effect in the corners, the others as written (K from 1 to 8).
+    #[arg(long, value_name = "K")]
+    screen: Option<usize>,
     /// Also run this many Monte Carlo samples of the toleranced values.
     #[arg(long, value_name = "N")]
     monte_carlo: Option<usize>,
@@ -2412,6 +2417,33 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
     // Tolerance cases: the nominal circuit, plus corners or Monte Carlo samples.
+    let bar_style = indicatif::ProgressStyle::with_template(
+        "{msg}{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
+    )
+    .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
+    let new_bar = |len: usize, message: &'static str| {
+        let bar = if args.quiet || args.json {
+            indicatif::ProgressBar::hidden()
+        } else {
+            indicatif::ProgressBar::new(len as u64)
+        };
+        bar.set_style(bar_style.clone());
+        bar.set_message(message);
+        bar
+    };
+    let n_values = circuit.tolerances.len();
+    let max_values = sagtrip::tolerance::MAX_CORNER_VALUES;
+    if let Some(k) = args.screen {
+        if !args.corners {
+            return Err("--screen goes with --corners".into());
+        }
+        if k == 0 || k > max_values {
+            return Err(format!(
+                "--screen {k}: keep from 1 to {max_values} values for the corners"
+            ));
+        }
+    }
+    let mut screening = Vec::new();
     let cases = match (args.corners, args.monte_carlo) {
         (true, Some(_)) => return Err("give --corners or --monte-carlo, not both".into()),
         (true, None) => {
@@ -2420,8 +2452,33 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
                     "--corners: {name} has no values with a tolerance (docs/circuit-format.md)"
                 ));
             }
-            sagtrip::tolerance::corners(&circuit.tolerances)
-                .map_err(|e| format!("--corners: {e}"))?
+            let keep = args.screen.unwrap_or(max_values).min(n_values);
+            if keep < n_values {
+                let per_case = plan.tests.len() + usize::from(plan.thresholds);
+                let bar = new_bar(2 * n_values * per_case, "screening ");
+                screening = sagtrip::table::screen(
+                    &text_of_circuit,
+                    &name,
+                    &circuit,
+                    &options,
+                    &plan,
+                    keep,
+                    &|| bar.inc(1),
+                )
+                .map_err(|e| format!("{name}: {e}"))?;
+                bar.finish_and_clear();
+                let kept: Vec<usize> = circuit
+                    .tolerances
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, t)| screening.iter().any(|e| e.kept && e.field == t.field))
+                    .map(|(i, _)| i)
+                    .collect();
+                sagtrip::tolerance::corners_of(&circuit.tolerances, &kept)
+            } else {
+                sagtrip::tolerance::corners(&circuit.tolerances)
+            }
+            .map_err(|e| format!("--corners: {e}"))?
         }
         (false, Some(n)) => {
             if circuit.tolerances.is_empty() {
@@ -2434,6 +2491,15 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         (false, None) => vec![sagtrip::tolerance::nominal()],
     };
     let tolerance_cases = match (args.corners, args.monte_carlo) {
+        (true, _) if !screening.is_empty() => {
+            let kept = screening.iter().filter(|e| e.kept).count();
+            format!(
+                "{} tolerance cases (nominal and every corner of the {kept} value{} kept by \
+                 screening all {n_values}; the others as written)",
+                cases.len(),
+                if kept == 1 { "" } else { "s" }
+            )
+        }
         (true, _) => format!(
             "{} tolerance cases (nominal and every corner of {} values)",
             cases.len(),
@@ -2477,18 +2543,9 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
     } else {
         0
     };
-    let bar = if args.quiet || args.json {
-        indicatif::ProgressBar::hidden()
-    } else {
-        indicatif::ProgressBar::new(
-            (runs + map_runs) as u64 + u64::from(plan.thresholds) * case_refs.len() as u64,
-        )
-    };
-    bar.set_style(
-        indicatif::ProgressStyle::with_template(
-            "{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
-        )
-        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    let bar = new_bar(
+        runs + map_runs + usize::from(plan.thresholds) * case_refs.len(),
+        "",
     );
     // The static thresholds of every case (the nominal first); the table shows the
     // nominal case's and the spread over all.
@@ -2527,6 +2584,7 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         runs,
         tolerance_cases,
         threshold_spread,
+        screening,
         notes,
     };
     let text = markdown(&table);

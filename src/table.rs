@@ -9,8 +9,9 @@ use serde::{Deserialize, Serialize};
 
 use crate::circuit::Circuit;
 use crate::profile::{iec_presets, resolve, Duration, Profile, Step, DEFAULT_EDGE_S};
-use crate::scenario::{EventRun, ScenarioError, Settled};
+use crate::scenario::{EventOptions, EventRun, ScenarioError, Settled};
 use crate::thresholds::StaticThresholds;
+use crate::tolerance::{Effect, Quantity};
 
 /// One test of a plan.
 #[derive(Clone, Debug)]
@@ -295,6 +296,9 @@ pub struct Table {
     pub tolerance_cases: String,
     /// The spread of the static thresholds over the tolerance cases.
     pub threshold_spread: Option<ThresholdSpread>,
+    /// The screening of the toleranced values before the corners, largest effect first
+    /// (empty when the corners were not screened).
+    pub screening: Vec<Effect>,
     /// Anything the reader must know: cases that could not be simulated.
     pub notes: Vec<String>,
 }
@@ -408,6 +412,85 @@ pub fn run_cases(
         rows.push(row(test, &mine));
     }
     Ok(rows)
+}
+
+/// The quantities a screening case is judged by: each test's typical trip and restore
+/// latency (its change measured against the larger of the two latencies, at least 1 ms)
+/// and the four static thresholds (against the nominal voltage).
+pub fn screening_quantities(
+    rows: &[Row],
+    thresholds: Option<&StaticThresholds>,
+    nominal_rms_v: f64,
+) -> Vec<Quantity> {
+    let mut out = Vec::new();
+    for r in rows {
+        for (what, spread) in [
+            ("trip latency", r.trip_latency_ms),
+            ("restore latency", r.restore_latency_ms),
+        ] {
+            let value = spread.map(|s| s.typical);
+            out.push(Quantity {
+                name: format!("{what} of {}", r.name),
+                value,
+                scale: value.map_or(1.0, |v| v.abs().max(1.0)),
+            });
+        }
+    }
+    if let Some(t) = thresholds {
+        for (name, th) in [
+            ("under-voltage trip", t.under.trip),
+            ("under-voltage reset", t.under.reset),
+            ("over-voltage trip", t.over.trip),
+            ("over-voltage reset", t.over.reset),
+        ] {
+            out.push(Quantity {
+                name: name.into(),
+                value: th.map(|x| x.volts),
+                scale: nominal_rms_v,
+            });
+        }
+    }
+    out
+}
+
+/// Screens the toleranced values of the circuit file `text` (read from `path`, parsed as
+/// `circuit`): each value alone at each of its limits, the others as written, runs the
+/// plan's tests at its first phase and, if the plan has them, the static thresholds; the
+/// values are ranked by the largest change they cause in any of
+/// [`screening_quantities`], and the first `keep` marked kept. `done` is called after each
+/// simulated run or threshold search.
+pub fn screen(
+    text: &str,
+    path: &str,
+    circuit: &Circuit,
+    options: &EventOptions,
+    plan: &Plan,
+    keep: usize,
+    done: &(dyn Fn() + Sync),
+) -> Result<Vec<Effect>, String> {
+    let mut first_phase = plan.clone();
+    first_phase.phases.truncate(1);
+    let cases = crate::tolerance::one_at_a_time(&circuit.tolerances);
+    let measured: Vec<Vec<Quantity>> = cases
+        .par_iter()
+        .map(|case| {
+            let c = crate::circuit_file::parse_circuit_with(text, path, &case.values)
+                .map_err(|e| format!("screening, {}: {e}", case.label))?;
+            let s = crate::scenario::settle(&c, options)
+                .map_err(|e| format!("screening, {}: {e}", case.label))?;
+            let rows = run_cases(&[(&s, &c)], &first_phase, done)?;
+            let thresholds = if plan.thresholds {
+                // A failed search leaves the thresholds missing: their change counts fully.
+                let found = crate::thresholds::find(&s, &c, &Default::default()).ok();
+                done();
+                found
+            } else {
+                None
+            };
+            Ok(screening_quantities(&rows, thresholds.as_ref(), s.rms))
+        })
+        .collect::<Result<_, String>>()?;
+    Ok(crate::tolerance::rank(&circuit.tolerances, &measured, keep))
 }
 
 /// The spread of the static thresholds over tolerance cases, volts.
@@ -583,10 +666,44 @@ pub fn markdown(table: &Table) -> String {
             let _ = writeln!(out, "| {name} | {lo} | {typ} | {hi} |");
         }
     }
+    if !table.screening.is_empty() {
+        let _ = writeln!(out, "\n## Tolerance screening\n\n{SCREENING_TEXT}\n");
+        let _ = writeln!(out, "| value | largest change | in | corners |");
+        let _ = writeln!(out, "|---|---|---|---|");
+        for [field, percent, quantity, kept] in screening_rows(&table.screening) {
+            let _ = writeln!(out, "| `{field}` | {percent} | {quantity} | {kept} |");
+        }
+    }
     for note in &table.notes {
         let _ = writeln!(out, "\nNote: {note}");
     }
     out
+}
+
+/// What the screening table shows.
+const SCREENING_TEXT: &str = "Each value alone at its lower and at its upper limit, the others \
+     as written, at the first start phase: the largest change between the two of any test's \
+     typical trip or restore latency (percent of the longer, at least 1 ms) or static \
+     threshold (percent of nominal); 100% where one limit trips and the other does not. The \
+     corners vary the values kept and leave the others as written.";
+
+/// The screening as rows: field, change, quantity, kept.
+fn screening_rows(effects: &[Effect]) -> Vec<[String; 4]> {
+    effects
+        .iter()
+        .map(|e| {
+            [
+                e.field.clone(),
+                format!("{:.2}%", e.percent),
+                if e.quantity.is_empty() {
+                    "-".into()
+                } else {
+                    e.quantity.clone()
+                },
+                if e.kept { "varied" } else { "as written" }.into(),
+            ]
+        })
+        .collect()
 }
 
 /// The table as CSV: one line per test, the spreads in three columns each.
@@ -719,6 +836,24 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
                 out,
                 "<tr><td>{name}</td><td class=\"num\">{lo}</td><td class=\"num\">{typ}</td>\
                  <td class=\"num\">{hi}</td></tr>"
+            );
+        }
+        let _ = writeln!(out, "</table>");
+    }
+    if !table.screening.is_empty() {
+        let _ = writeln!(
+            out,
+            "<h2>Tolerance screening</h2>\n<p>{}</p>\n<table>\n<tr><th>value</th>\
+             <th>largest change</th><th>in</th><th>corners</th></tr>",
+            escape(SCREENING_TEXT)
+        );
+        for [field, percent, quantity, kept] in screening_rows(&table.screening) {
+            let _ = writeln!(
+                out,
+                "<tr><td><code>{}</code></td><td class=\"num\">{percent}</td><td>{}</td>\
+                 <td>{kept}</td></tr>",
+                escape(&field),
+                escape(&quantity)
             );
         }
         let _ = writeln!(out, "</table>");

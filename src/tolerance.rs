@@ -1,6 +1,8 @@
 //! Tolerance cases: the values a circuit's toleranced parts take in one run. The nominal
 //! case (every value as written), every corner (each value at its lower or upper limit),
-//! or seeded Monte Carlo samples (each value uniform between its limits).
+//! corners over a chosen subset after screening (each value alone at its limits, ranked by
+//! how much it moves the results), or seeded Monte Carlo samples (each value uniform between
+//! its limits).
 
 use std::collections::HashMap;
 
@@ -29,20 +31,28 @@ pub const MAX_CORNER_VALUES: usize = 8;
 /// The nominal case and every corner: 2^n cases for n toleranced values, corner k taking
 /// value i at its upper limit when bit i of k is set.
 pub fn corners(tolerances: &[Tolerance]) -> Result<Vec<Case>, String> {
-    let n = tolerances.len();
+    let all: Vec<usize> = (0..tolerances.len()).collect();
+    corners_of(tolerances, &all)
+}
+
+/// The nominal case and every corner of the values `keep` (indices into `tolerances`), the
+/// others as written: corner k takes `keep[i]` at its upper limit when bit i of k is set.
+pub fn corners_of(tolerances: &[Tolerance], keep: &[usize]) -> Result<Vec<Case>, String> {
+    let n = keep.len();
     if n > MAX_CORNER_VALUES {
         return Err(format!(
             "{n} values with a tolerance make 2^{n} corners; corners are run for at most \
-             {MAX_CORNER_VALUES} values: use Monte Carlo, or remove the tolerances of the \
-             values that matter least"
+             {MAX_CORNER_VALUES} values: screen them (--screen), use Monte Carlo, or remove \
+             the tolerances of the values that matter least"
         ));
     }
     let mut cases = vec![nominal()];
     for k in 0..(1usize << n) {
-        let values = tolerances
+        let values = keep
             .iter()
             .enumerate()
-            .map(|(i, t)| {
+            .map(|(i, &t)| {
+                let t = &tolerances[t];
                 let v = if k >> i & 1 == 1 { t.max } else { t.min };
                 (t.field.clone(), v)
             })
@@ -53,6 +63,80 @@ pub fn corners(tolerances: &[Tolerance]) -> Result<Vec<Case>, String> {
         });
     }
     Ok(cases)
+}
+
+/// Screening cases: each value alone at its lower limit, then alone at its upper limit,
+/// the others as written. Value i's cases are at `2 i` (low) and `2 i + 1` (high).
+pub fn one_at_a_time(tolerances: &[Tolerance]) -> Vec<Case> {
+    tolerances
+        .iter()
+        .flat_map(|t| {
+            [("low", t.min), ("high", t.max)].map(|(end, v)| Case {
+                label: format!("{} {end}", t.field),
+                values: HashMap::from([(t.field.clone(), v)]),
+            })
+        })
+        .collect()
+}
+
+/// A quantity a screening case measures.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Quantity {
+    /// What it is, e.g. `under-voltage trip` or `trip latency of dip 70% 25 cycles`.
+    pub name: String,
+    /// Its value; `None` where it does not exist (no trip, so no trip latency).
+    pub value: Option<f64>,
+    /// A change is measured against this (the larger of the two cases' scales).
+    pub scale: f64,
+}
+
+/// How much one toleranced value moves the results between its limits.
+#[derive(Clone, Debug, PartialEq, serde::Serialize)]
+pub struct Effect {
+    /// The field, e.g. `part.r_bot.resistance`.
+    pub field: String,
+    /// The largest change of any quantity between the value's two screening cases, percent
+    /// of that quantity's scale; 100 where a quantity exists in one case only.
+    pub percent: f64,
+    /// The quantity that changed most.
+    pub quantity: String,
+    /// Whether the corners vary this value (otherwise it stays as written).
+    pub kept: bool,
+}
+
+/// Ranks the values by their effect, largest first (file order among equals), and marks
+/// the first `keep` as kept. `measured[2 i]` and `measured[2 i + 1]` are the quantities of
+/// value i's low and high cases (from [`one_at_a_time`]), in the same order in every case.
+pub fn rank(tolerances: &[Tolerance], measured: &[Vec<Quantity>], keep: usize) -> Vec<Effect> {
+    let mut effects: Vec<Effect> = tolerances
+        .iter()
+        .enumerate()
+        .map(|(i, t)| {
+            let (low, high) = (&measured[2 * i], &measured[2 * i + 1]);
+            let mut best = (0.0, String::new());
+            for (a, b) in low.iter().zip(high) {
+                let change = match (a.value, b.value) {
+                    (Some(x), Some(y)) => 100.0 * (x - y).abs() / a.scale.max(b.scale),
+                    (None, None) => 0.0,
+                    _ => 100.0,
+                };
+                if change > best.0 {
+                    best = (change, a.name.clone());
+                }
+            }
+            Effect {
+                field: t.field.clone(),
+                percent: best.0,
+                quantity: best.1,
+                kept: false,
+            }
+        })
+        .collect();
+    effects.sort_by(|a, b| b.percent.total_cmp(&a.percent));
+    for e in effects.iter_mut().take(keep) {
+        e.kept = true;
+    }
+    effects
 }
 
 /// A small, fixed generator (SplitMix64): the same seed always gives the same samples.
@@ -115,6 +199,44 @@ mod tests {
         assert_eq!(seen, [(1.0, 10.0), (1.0, 20.0), (2.0, 10.0), (2.0, 20.0)]);
         let many: Vec<Tolerance> = (0..9).map(|i| tol(&format!("v{i}"), 1.0, 2.0)).collect();
         assert!(corners(&many).is_err());
+    }
+
+    #[test]
+    fn screening_moves_one_value_at_a_time_and_ranks_by_the_largest_change() {
+        let t = [tol("a", 1.0, 2.0), tol("b", 10.0, 20.0), tol("c", 0.0, 1.0)];
+        let cases = one_at_a_time(&t);
+        assert_eq!(cases.len(), 6);
+        assert_eq!(cases[2].values, HashMap::from([("b".to_string(), 10.0)]));
+        assert_eq!(cases[3].values, HashMap::from([("b".to_string(), 20.0)]));
+        let q = |name: &str, value: Option<f64>| Quantity {
+            name: name.into(),
+            value,
+            scale: 100.0,
+        };
+        let measured = vec![
+            vec![q("x", Some(50.0)), q("y", Some(1.0))],
+            vec![q("x", Some(51.0)), q("y", Some(1.0))],
+            vec![q("x", Some(50.0)), q("y", Some(1.0))],
+            vec![q("x", Some(50.0)), q("y", Some(9.0))],
+            vec![q("x", Some(50.0)), q("y", None)],
+            vec![q("x", Some(50.0)), q("y", Some(1.0))],
+        ];
+        let ranked = rank(&t, &measured, 2);
+        let order: Vec<(&str, f64, &str, bool)> = ranked
+            .iter()
+            .map(|e| (e.field.as_str(), e.percent, e.quantity.as_str(), e.kept))
+            .collect();
+        assert_eq!(
+            order,
+            [
+                ("c", 100.0, "y", true),
+                ("b", 8.0, "y", true),
+                ("a", 1.0, "x", false)
+            ]
+        );
+        let kept = corners_of(&t, &[1]).unwrap();
+        assert_eq!(kept.len(), 3);
+        assert!(kept[1..].iter().all(|c| c.values.len() == 1));
     }
 
     #[test]

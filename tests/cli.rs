@@ -712,6 +712,28 @@ fn table_over_tolerance_cases_is_reproducible() {
     assert_eq!(one, two);
     let (text, _) = csv("corners.csv", &["--corners"]);
     assert!(text.contains("17 tolerance cases (nominal and every corner of 4 values)"));
+    // Screening for one value: 3 cases, and a screening section listing all four values.
+    let (text, _) = csv("screened.csv", &["--corners", "--screen", "1"]);
+    assert!(
+        text.contains("3 tolerance cases (nominal and every corner of the 1 value kept"),
+        "{text}"
+    );
+    assert!(text.contains("## Tolerance screening"));
+    assert_eq!(text.matches(" | varied |").count(), 1);
+    assert_eq!(text.matches(" | as written |").count(), 3);
+    for (bad, message) in [
+        (vec!["--screen", "2"], "--screen goes with --corners"),
+        (vec!["--corners", "--screen", "9"], "keep from 1 to 8"),
+    ] {
+        let mut args = vec!["table", "--circuit", circuit, "--quiet"];
+        args.extend_from_slice(&bad);
+        let out = sagtrip(&args);
+        assert!(!out.status.success());
+        assert!(
+            String::from_utf8_lossy(&out.stderr).contains(message),
+            "{bad:?}"
+        );
+    }
     // Tolerance cases need tolerances.
     let out = sagtrip(&["table", "--corners", "--plan", plan.to_str().unwrap()]);
     assert!(!out.status.success());

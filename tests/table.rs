@@ -197,3 +197,51 @@ fn widening_a_tolerance_never_narrows_the_spread() {
     );
     assert!(wide.max - wide.min > narrow.max - narrow.min);
 }
+
+#[test]
+fn screening_keeps_the_value_that_sets_the_thresholds() {
+    // r_bot (±5%) scales every threshold by the divider rule; the load resistor (±5%) sits
+    // on the ideal mains source behind the relay contact and moves nothing the protector
+    // senses. Screening for one value must keep r_bot, and its largest change must match
+    // the divider rule (Ohm's law, from memory): a threshold V scales with
+    // (r_top + r_bot) / r_bot. Within 10%: the divider also loads the peak detector.
+    let text = guard_with_r_bot("±5%");
+    assert_eq!(text.matches("resistance = \"52.9\"").count(), 1);
+    let text = text.replace("resistance = \"52.9\"", "resistance = \"52.9 ±5%\"");
+    let guard = circuit(&text);
+    let plan = sagtrip::table::Plan {
+        title: "thresholds only".into(),
+        tests: Vec::new(),
+        phases: vec![0.0],
+        thresholds: true,
+    };
+    let options = EventOptions::default();
+    let effects =
+        sagtrip::table::screen(&text, "guard", &guard, &options, &plan, 1, &|| {}).unwrap();
+    assert_eq!(effects.len(), 2);
+    assert_eq!(effects[0].field, "part.r_bot.resistance");
+    assert!(effects[0].kept && !effects[1].kept);
+    assert_eq!(effects[1].field, "part.load.resistance");
+    // Only the bisection's resolution (0.1 V of 230 V) may move with the load.
+    assert!(
+        effects[1].percent <= 100.0 * 0.1 / 230.0 + 1e-9,
+        "{effects:?}"
+    );
+    // The largest change is in an over-voltage threshold (the highest voltages): between
+    // r_bot = 14.25k and 15.75k, from the nominal over-voltage trip.
+    let settled = settle(&guard, &options).unwrap();
+    let nominal = sagtrip::thresholds::find(&settled, &guard, &Default::default()).unwrap();
+    let ov = nominal.over.trip.unwrap().volts;
+    let ratio = |r_bot: f64| (68e3 + r_bot) / r_bot;
+    let hand = 100.0 * ov * (ratio(14.25e3) - ratio(15.75e3)) / ratio(15e3) / 230.0;
+    eprintln!("screened {:.2}%, hand {hand:.2}%", effects[0].percent);
+    assert!(
+        effects[0].quantity.starts_with("over-voltage"),
+        "{effects:?}"
+    );
+    assert!(
+        (effects[0].percent - hand).abs() < 0.1 * hand,
+        "screened {:.2}%, hand {hand:.2}%",
+        effects[0].percent
+    );
+}
