@@ -73,24 +73,45 @@ impl Comparator {
         ]
     }
 
+    /// (target, d target / d pin) for the pins in [`Comparator::nodes`] order: the
+    /// derivatives of the module's equations in closed form.
+    fn transfer_gradient(&self, v: [f64; 5]) -> (f64, [f64; 5]) {
+        let p = &self.params;
+        let [vp, vm, sp, sn, x] = v;
+        let v_low = sn + p.low_headroom;
+        let d = sp - p.high_headroom - v_low;
+        let root = (d * d + SPAN_SOFTNESS * SPAN_SOFTNESS).sqrt();
+        let span = 0.5 * (d + root);
+        // d span / d sp (and minus d span / d sn).
+        let sigma = 0.5 * (1.0 + d / root);
+        let norm = span + SPAN_FLOOR;
+        let s = 2.0 * (x - v_low) / norm - 1.0;
+        let e = vp - vm - p.input_offset + 0.5 * p.hysteresis * s;
+        let u = 2.0 * p.gain * e / norm;
+        let t = u.tanh();
+        let target = v_low + span * 0.5 * (1.0 + t);
+        // Partials with respect to (vp, vm, sp, sn, x).
+        let dnorm = [0.0, 0.0, sigma, -sigma, 0.0];
+        let dvlow = [0.0, 0.0, 0.0, 1.0, 0.0];
+        let mut grad = [0.0; 5];
+        for k in 0..5 {
+            let dx = if k == 4 { 1.0 } else { 0.0 };
+            let ds = 2.0 * (dx - dvlow[k]) / norm - 2.0 * (x - v_low) * dnorm[k] / (norm * norm);
+            let de = [1.0, -1.0, 0.0, 0.0, 0.0][k] + 0.5 * p.hysteresis * ds;
+            let du = 2.0 * p.gain * (de / norm - e * dnorm[k] / (norm * norm));
+            grad[k] = dvlow[k] + dnorm[k] * 0.5 * (1.0 + t) + span * 0.5 * (1.0 - t * t) * du;
+        }
+        (target, grad)
+    }
+
     pub(super) fn stamp(&self, m: &mut Mna<'_>, x: &[f64]) {
         let v = self.pins(x);
-        let (f0, _) = self.transfer(v[0], v[1], v[2], v[3], v[4]);
-        // Partial derivatives by central differences: the transfer is smooth and cheap, and
-        // five inputs make the closed forms long and error-prone.
+        let (f0, grad) = self.transfer_gradient(v);
         let mut rhs = f0;
         for (k, node) in self.nodes().into_iter().enumerate() {
-            let step = 1e-7 * (1.0 + v[k].abs());
-            let mut hi = v;
-            let mut lo = v;
-            hi[k] += step;
-            lo[k] -= step;
-            let g = (self.transfer(hi[0], hi[1], hi[2], hi[3], hi[4]).0
-                - self.transfer(lo[0], lo[1], lo[2], lo[3], lo[4]).0)
-                / (2.0 * step);
             // The lag node's equation: x + tau dx/dt - target(v) = 0.
-            m.add(self.lag, node, -g);
-            rhs -= g * v[k];
+            m.add(self.lag, node, -grad[k]);
+            rhs -= grad[k] * v[k];
         }
         m.b[self.lag] += rhs;
         // Output: current out of the output pin into the comparator = (v_out - x) / R_out.
@@ -115,5 +136,58 @@ impl Comparator {
     /// Output current into the output pin.
     pub(super) fn current(&self, x: &[f64]) -> f64 {
         (x[self.lag] - x[self.output]) / self.params.output_resistance
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_closed_form_gradient_matches_central_differences() {
+        let mut params = ComparatorParams {
+            low_headroom: 0.05,
+            high_headroom: 1.5,
+            gain: 1e3,
+            output_resistance: 100.0,
+            response_time: 1e-6,
+            input_offset: 0.01,
+            hysteresis: 0.2,
+        };
+        for hysteresis in [0.0, 0.2] {
+            params.hysteresis = hysteresis;
+            let c = Comparator {
+                plus: 0,
+                minus: 1,
+                output: 2,
+                supply_plus: 3,
+                supply_minus: 4,
+                lag: 5,
+                params: params.clone(),
+            };
+            // Around the threshold, powered; and with the supply collapsing.
+            for v in [
+                [2.5, 2.4999, 12.0, 0.0, 6.0],
+                [2.5, 2.5003, 12.0, 0.1, 3.0],
+                [1.0, 0.2, 1.6, 0.0, 0.05],
+                [3.0, 3.0, 0.5, 0.0, 0.0],
+            ] {
+                let (f0, grad) = c.transfer_gradient(v);
+                assert_eq!(f0, c.transfer(v[0], v[1], v[2], v[3], v[4]).0);
+                for k in 0..5 {
+                    let h = 1e-7 * (1.0 + v[k].abs());
+                    let (mut hi, mut lo) = (v, v);
+                    hi[k] += h;
+                    lo[k] -= h;
+                    let f = |w: [f64; 5]| c.transfer(w[0], w[1], w[2], w[3], w[4]).0;
+                    let numeric = (f(hi) - f(lo)) / (2.0 * h);
+                    assert!(
+                        (grad[k] - numeric).abs() <= 1e-5 * (1.0 + numeric.abs()),
+                        "pin {k} at {v:?}: {} vs {numeric}",
+                        grad[k]
+                    );
+                }
+            }
+        }
     }
 }

@@ -12,12 +12,20 @@ use crate::circuit::{DiodeParams, THERMAL_VOLTAGE};
 /// Exponent above which `exp` continues linearly, to keep Newton guesses finite.
 const EXP_LIMIT: f64 = 80.0;
 
-/// `exp(x)` and its derivative, continued linearly above [`EXP_LIMIT`].
+/// Exponent below which `exp` is taken as 0 (`exp(-700)` is 1e-304): the library's
+/// underflow path is slow, and a reverse junction's or a far breakdown's exponential is far
+/// below every other current.
+const EXP_FLOOR: f64 = -700.0;
+
+/// `exp(x)` and its derivative, continued linearly above [`EXP_LIMIT`], 0 below
+/// [`EXP_FLOOR`].
 #[inline]
 pub(super) fn limited_exp(x: f64) -> (f64, f64) {
     if x > EXP_LIMIT {
         let e = EXP_LIMIT.exp();
         (e * (1.0 + x - EXP_LIMIT), e)
+    } else if x < EXP_FLOOR {
+        (0.0, 0.0)
     } else {
         let e = x.exp();
         (e, e)
@@ -30,8 +38,9 @@ pub(crate) struct Junction {
     is: f64,
     n_vt: f64,
     v_crit: f64,
-    /// (breakdown voltage, breakdown current, nb Vt, critical voltage of the mirror law).
-    breakdown: Option<(f64, f64, f64, f64)>,
+    /// (breakdown voltage, breakdown current, nb Vt, critical voltage of the mirror law,
+    /// exp(-BV / (nb Vt))).
+    breakdown: Option<(f64, f64, f64, f64, f64)>,
 }
 
 /// The classic p-n junction voltage limiting: a large forward step is replaced by the
@@ -64,7 +73,13 @@ impl Junction {
             v_crit: critical(n_vt, p.saturation_current),
             breakdown: p.breakdown.as_ref().map(|b| {
                 let nb_vt = b.slope_resistance * b.current;
-                (b.voltage, b.current, nb_vt, critical(nb_vt, b.current))
+                (
+                    b.voltage,
+                    b.current,
+                    nb_vt,
+                    critical(nb_vt, b.current),
+                    limited_exp(-b.voltage / nb_vt).0,
+                )
             }),
         }
     }
@@ -75,9 +90,9 @@ impl Junction {
         let (e, de) = limited_exp(v / self.n_vt);
         let mut i = self.is * (e - 1.0);
         let mut g = self.is * de / self.n_vt;
-        if let Some((bv, ibv, nb_vt, _)) = self.breakdown {
+        if let Some((bv, ibv, nb_vt, _, e0)) = self.breakdown {
             let (eb, deb) = limited_exp(-(v + bv) / nb_vt);
-            i -= ibv * (eb - (-bv / nb_vt).exp());
+            i -= ibv * (eb - e0);
             g += ibv * deb / nb_vt;
         }
         (i, g)
@@ -96,7 +111,7 @@ impl Junction {
     #[inline]
     fn limit(&self, v_new: f64, v_old: f64) -> (f64, bool) {
         let mut v = limit_junction(v_new, v_old, self.n_vt, self.v_crit);
-        if let Some((bv, _, nb_vt, v_crit)) = self.breakdown {
+        if let Some((bv, _, nb_vt, v_crit, _)) = self.breakdown {
             if v < 0.0 {
                 let u = limit_junction(-(v + bv), -(v_old + bv), nb_vt, v_crit);
                 v = -u - bv;

@@ -40,6 +40,9 @@ fn softplus(x: f64, d: f64) -> (f64, f64) {
     let z = x / d;
     if z > 30.0 {
         (x, 1.0)
+    } else if z < -700.0 {
+        // Below 1e-304: zero, without the library's slow underflow path.
+        (0.0, 0.0)
     } else if z < -30.0 {
         (d * z.exp(), z.exp())
     } else {

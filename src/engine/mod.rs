@@ -249,6 +249,9 @@ pub struct SimState {
     step: f64,
     /// The last attempted step was rejected by the truncation-error test.
     just_rejected: bool,
+    /// The step being tried ends just before a device's corner: the next one is
+    /// `corner_step_s` long, through it.
+    corner_ahead: bool,
     /// Counters since the state was created.
     pub stats: RunStats,
 }
@@ -345,6 +348,8 @@ struct Workspace {
     x_next: Vec<f64>,
     /// Solution kept while locating a discrete event.
     x_keep: Vec<f64>,
+    /// A point on the straight line between two solutions (corner interpolation).
+    x_line: Vec<f64>,
     scratch: Vec<f64>,
     /// Per-unknown normalised update of the last iteration (for failure messages).
     update: Vec<f64>,
@@ -388,6 +393,7 @@ impl Simulator {
             x_sol: vec![0.0; dim],
             x_next: vec![0.0; dim],
             x_keep: vec![0.0; dim],
+            x_line: vec![0.0; dim],
             scratch: vec![0.0; network.scratch_len],
             update: vec![0.0; dim],
             a_copy: vec![0.0; dim * dim],
@@ -432,6 +438,7 @@ impl Simulator {
             points_since_break: 1,
             step: self.settings.restart_step_s,
             just_rejected: false,
+            corner_ahead: false,
             stats: RunStats::default(),
         }
     }
@@ -822,6 +829,31 @@ impl Simulator {
         })
     }
 
+    /// Where, as a fraction of the step, the first device changes region, on the straight
+    /// line from the state to the solution in the workspace (bisection to 1/1024 of the
+    /// step; the last fraction known to be before the change).
+    fn corner_fraction(&mut self, state: &SimState) -> f64 {
+        let on = self.settings.corner_current_a;
+        let (mut before, mut after) = (0.0, 1.0);
+        for _ in 0..10 {
+            let mid = 0.5 * (before + after);
+            for ((p, a), b) in self.ws.x_line.iter_mut().zip(&state.x).zip(&self.ws.x_sol) {
+                *p = a + mid * (b - a);
+            }
+            let network = &self.network;
+            let changed = network.regime_devices.iter().any(|&d| {
+                let device = &network.devices[d];
+                device.regime(&state.x, on) != device.regime(&self.ws.x_line, on)
+            });
+            if changed {
+                after = mid;
+            } else {
+                before = mid;
+            }
+        }
+        before
+    }
+
     /// The largest crossing function over the discrete devices at `x`.
     fn crossing(&self, x: &[f64], modes: &[Mode]) -> f64 {
         self.network
@@ -1039,7 +1071,17 @@ impl Simulator {
             if corner && h > self.settings.corner_step_s * (1.0 + 1e-9) {
                 state.stats.rejected_steps += 1;
                 state.just_rejected = true;
-                state.step = (0.25 * h).max(self.settings.corner_step_s);
+                // Step to just before the corner (located on the straight line between the
+                // two solutions), then through it with a corner-length step.
+                let corner_step = self.settings.corner_step_s;
+                let before = self.corner_fraction(state) * h - 0.5 * corner_step;
+                if before > corner_step {
+                    state.step = before;
+                    state.corner_ahead = true;
+                } else {
+                    state.step = corner_step;
+                    state.corner_ahead = false;
+                }
                 continue;
             }
 
@@ -1074,9 +1116,12 @@ impl Simulator {
                 state.points_since_break = 1;
                 state.step = self.settings.corner_step_s;
                 state.stats.restarts += 1;
+            } else if state.corner_ahead {
+                state.step = self.settings.corner_step_s;
             } else {
                 state.step = h * growth;
             }
+            state.corner_ahead = false;
         }
         Ok(())
     }
