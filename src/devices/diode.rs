@@ -128,6 +128,14 @@ impl Junction {
                 if v_current < v {
                     v = v_current;
                 }
+            } else {
+                // The tangent turns the junction off altogether: drop to a thousandth of
+                // its present current (about 7 n Vt lower) at once, rather than creep down
+                // n Vt per iteration.
+                let v_off = self.n_vt * (1e-3 * i_old.max(0.0) / self.is).ln_1p();
+                if v_off < v {
+                    v = v_off;
+                }
             }
         }
         (v, cut)

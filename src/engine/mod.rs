@@ -1047,7 +1047,11 @@ impl Simulator {
 
             // Before the error estimate is available (just after a restart) grow fast: the
             // restart step is deliberately tiny.
-            let mut growth = 4.0;
+            let mut growth = if h < self.settings.corner_step_s {
+                4.0
+            } else {
+                2.0
+            };
             if method == Method::Trapezoidal && state.points_since_break >= 3 {
                 let err = self.truncation_error(state, h);
                 let factor = 0.9 * err.max(1e-12).powf(-1.0 / 3.0);
