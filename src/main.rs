@@ -9,7 +9,6 @@ use std::fmt::Write as _;
 use std::io::Write as _;
 
 use clap::{Args, Parser, Subcommand, ValueEnum};
-use rayon::prelude::*;
 
 use sagtrip::builtin;
 use sagtrip::circuit::{Circuit, PartSpec};
@@ -2362,8 +2361,23 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
     Ok(out)
 }
 
+/// The table's progress on one terminal bar, restarted at each stage.
+struct Bar(indicatif::ProgressBar);
+
+impl sagtrip::table::Progress for Bar {
+    fn stage(&self, name: &str, runs: usize) {
+        self.0.set_message(name.to_string());
+        self.0.set_length(runs as u64);
+        self.0.set_position(0);
+    }
+
+    fn done(&self) {
+        self.0.inc(1);
+    }
+}
+
 fn table_command(args: &TableArgs) -> Result<String, String> {
-    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Table};
+    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases, Progress};
     let mut out = String::new();
     let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = EventOptions {
@@ -2414,179 +2428,35 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
         }
     }
     let started = Instant::now();
-    let settled =
-        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
-    // Tolerance cases: the nominal circuit, plus corners or Monte Carlo samples.
-    let bar_style = indicatif::ProgressStyle::with_template(
-        "{msg}{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
-    )
-    .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar());
-    let new_bar = |len: usize, message: &'static str| {
-        let bar = if args.quiet || args.json {
-            indicatif::ProgressBar::hidden()
-        } else {
-            indicatif::ProgressBar::new(len as u64)
-        };
-        bar.set_style(bar_style.clone());
-        bar.set_message(message);
-        bar
+    let cases = match (args.corners, args.monte_carlo, args.screen) {
+        (true, Some(_), _) => return Err("give --corners or --monte-carlo, not both".into()),
+        (false, _, Some(_)) => return Err("--screen goes with --corners".into()),
+        (true, None, screen) => Cases::Corners { screen },
+        (false, Some(count), None) => Cases::MonteCarlo {
+            count,
+            seed: args.seed,
+        },
+        (false, None, None) => Cases::Nominal,
     };
-    let n_values = circuit.tolerances.len();
-    let max_values = sagtrip::tolerance::MAX_CORNER_VALUES;
-    if let Some(k) = args.screen {
-        if !args.corners {
-            return Err("--screen goes with --corners".into());
-        }
-        if k == 0 || k > max_values {
-            return Err(format!(
-                "--screen {k}: keep from 1 to {max_values} values for the corners"
-            ));
-        }
-    }
-    let mut screening = Vec::new();
-    let cases = match (args.corners, args.monte_carlo) {
-        (true, Some(_)) => return Err("give --corners or --monte-carlo, not both".into()),
-        (true, None) => {
-            if circuit.tolerances.is_empty() {
-                return Err(format!(
-                    "--corners: {name} has no values with a tolerance (docs/circuit-format.md)"
-                ));
-            }
-            let keep = args.screen.unwrap_or(max_values).min(n_values);
-            if keep < n_values {
-                let per_case = plan.tests.len() + usize::from(plan.thresholds);
-                let bar = new_bar(2 * n_values * per_case, "screening ");
-                screening = sagtrip::table::screen(
-                    &text_of_circuit,
-                    &name,
-                    &circuit,
-                    &options,
-                    &plan,
-                    keep,
-                    &|| bar.inc(1),
-                )
-                .map_err(|e| format!("{name}: {e}"))?;
-                bar.finish_and_clear();
-                let kept: Vec<usize> = circuit
-                    .tolerances
-                    .iter()
-                    .enumerate()
-                    .filter(|(_, t)| screening.iter().any(|e| e.kept && e.field == t.field))
-                    .map(|(i, _)| i)
-                    .collect();
-                sagtrip::tolerance::corners_of(&circuit.tolerances, &kept)
-            } else {
-                sagtrip::tolerance::corners(&circuit.tolerances)
-            }
-            .map_err(|e| format!("--corners: {e}"))?
-        }
-        (false, Some(n)) => {
-            if circuit.tolerances.is_empty() {
-                return Err(format!(
-                    "--monte-carlo: {name} has no values with a tolerance (docs/circuit-format.md)"
-                ));
-            }
-            sagtrip::tolerance::monte_carlo(&circuit.tolerances, n, args.seed)
-        }
-        (false, None) => vec![sagtrip::tolerance::nominal()],
-    };
-    let tolerance_cases = match (args.corners, args.monte_carlo) {
-        (true, _) if !screening.is_empty() => {
-            let kept = screening.iter().filter(|e| e.kept).count();
-            format!(
-                "{} tolerance cases (nominal and every corner of the {kept} value{} kept by \
-                 screening all {n_values}; the others as written)",
-                cases.len(),
-                if kept == 1 { "" } else { "s" }
-            )
-        }
-        (true, _) => format!(
-            "{} tolerance cases (nominal and every corner of {} values)",
-            cases.len(),
-            circuit.tolerances.len()
-        ),
-        (false, Some(n)) => format!(
-            "{} tolerance cases (nominal and {n} Monte Carlo samples of {} values, uniform \
-             between their limits, seed {})",
-            cases.len(),
-            circuit.tolerances.len(),
-            args.seed
-        ),
-        _ => String::new(),
-    };
-    let extra: Vec<(sagtrip::circuit::Circuit, sagtrip::scenario::Settled)> = cases[1..]
-        .par_iter()
-        .map(|case| {
-            let c =
-                sagtrip::circuit_file::parse_circuit_with(&text_of_circuit, &name, &case.values)
-                    .map_err(|e| format!("{}: {e}", case.label))?;
-            let s = sagtrip::scenario::settle(&c, &options)
-                .map_err(|e| format!("{name} ({}): {e}", case.label))?;
-            Ok((c, s))
-        })
-        .collect::<Result<_, String>>()?;
-    let mut case_refs: Vec<(&sagtrip::scenario::Settled, &sagtrip::circuit::Circuit)> =
-        vec![(&settled, &circuit)];
-    case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
-    let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
-    // The report's trip map: a coarse grid (the sweep command refines it further).
-    let map_grid = sagtrip::sweep::Grid {
-        levels_pct: (0..10)
-            .map(|k| f64::from(k) * 10.0)
-            .chain([110.0, 120.0, 130.0, 150.0])
-            .collect(),
-        durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
-        phases_deg: vec![0.0, 90.0],
-    };
-    let map_runs = if args.html.is_some() {
-        map_grid.points().len()
+    let bar = if args.quiet || args.json {
+        indicatif::ProgressBar::hidden()
     } else {
-        0
+        indicatif::ProgressBar::new(0)
     };
-    let bar = new_bar(
-        runs + map_runs + usize::from(plan.thresholds) * case_refs.len(),
-        "",
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{msg}{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    // The static thresholds of every case (the nominal first); the table shows the
-    // nominal case's and the spread over all.
-    // A failure of the nominal case stops the table; one of another case is reported in
-    // the table's notes and that case left out of the spread.
-    let mut notes: Vec<String> = Vec::new();
-    let mut all_thresholds: Vec<sagtrip::thresholds::StaticThresholds> = Vec::new();
-    if plan.thresholds {
-        for (k, (s, c)) in case_refs.iter().enumerate() {
-            let found =
-                sagtrip::thresholds::find(s, c, &sagtrip::thresholds::ThresholdOptions::default());
-            bar.inc(1);
-            match found {
-                Ok(t) => all_thresholds.push(t),
-                Err(e) if k == 0 => return Err(format!("{name}: thresholds: {e}")),
-                Err(e) => notes.push(format!(
-                    "{}: the static thresholds could not be found ({e}); this case is left \
-                     out of the threshold spread",
-                    cases[k].label
-                )),
-            }
-        }
-    }
-    let rows = sagtrip::table::run_cases(&case_refs, &plan, &|| bar.inc(1))
-        .map_err(|e| format!("{name}: {e}"))?;
-    let threshold_spread =
-        (all_thresholds.len() > 1).then(|| sagtrip::table::ThresholdSpread::of(&all_thresholds));
-    let table = Table {
-        circuit: circuit.title.clone(),
-        plan: plan.title.clone(),
-        nominal_rms_v: settled.rms,
-        frequency_hz: settled.frequency_hz,
-        phases_deg: plan.phases.clone(),
-        rows,
-        thresholds: all_thresholds.into_iter().next(),
-        runs,
-        tolerance_cases,
-        threshold_spread,
-        screening,
-        notes,
+    let progress = Bar(bar);
+    let source = sagtrip::table::Source {
+        text: &text_of_circuit,
+        path: &name,
+        circuit: &circuit,
     };
+    let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)?;
+    let bar = &progress.0;
     let text = markdown(&table);
     if let Some(path) = &args.csv {
         write_atomic(path, |w| w.write_all(csv(&table).as_bytes()))
@@ -2597,6 +2467,16 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
             .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
     if let Some(path) = &args.html {
+        // The report's trip map: a coarse grid (the sweep command refines it further).
+        let map_grid = sagtrip::sweep::Grid {
+            levels_pct: (0..10)
+                .map(|k| f64::from(k) * 10.0)
+                .chain([110.0, 120.0, 130.0, 150.0])
+                .collect(),
+            durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
+            phases_deg: vec![0.0, 90.0],
+        };
+        progress.stage("trip map ", map_grid.points().len());
         let points =
             sagtrip::sweep::run_grid(&settled, &circuit, &map_grid, DEFAULT_EDGE_S, &|| {
                 bar.inc(1)

@@ -453,21 +453,23 @@ pub fn screening_quantities(
     out
 }
 
-/// Screens the toleranced values of the circuit file `text` (read from `path`, parsed as
-/// `circuit`): each value alone at each of its limits, the others as written, runs the
-/// plan's tests at its first phase and, if the plan has them, the static thresholds; the
-/// values are ranked by the largest change they cause in any of
+/// Screens the toleranced values of a circuit file: with each value alone at each of its
+/// limits, the others as written, runs the plan's tests at its first phase and, if the
+/// plan has them, the static thresholds; the values are ranked by the largest change they cause in any of
 /// [`screening_quantities`], and the first `keep` marked kept. `done` is called after each
 /// simulated run or threshold search.
-pub fn screen(
-    text: &str,
-    path: &str,
-    circuit: &Circuit,
+pub fn screen_values(
+    source: Source<'_>,
     options: &EventOptions,
     plan: &Plan,
     keep: usize,
     done: &(dyn Fn() + Sync),
 ) -> Result<Vec<Effect>, String> {
+    let Source {
+        text,
+        path,
+        circuit,
+    } = source;
     let mut first_phase = plan.clone();
     first_phase.phases.truncate(1);
     let cases = crate::tolerance::one_at_a_time(&circuit.tolerances);
@@ -491,6 +493,192 @@ pub fn screen(
         })
         .collect::<Result<_, String>>()?;
     Ok(crate::tolerance::rank(&circuit.tolerances, &measured, keep))
+}
+
+/// Which tolerance cases a table runs besides the nominal circuit.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Cases {
+    /// The nominal circuit alone.
+    Nominal,
+    /// Every corner; with `screen: Some(k)` (or more than
+    /// [`crate::tolerance::MAX_CORNER_VALUES`] values) only the `k` values screening finds
+    /// most influential are varied.
+    Corners {
+        /// How many values the corners vary after screening.
+        screen: Option<usize>,
+    },
+    /// Seeded Monte Carlo samples.
+    MonteCarlo {
+        /// Samples besides the nominal case.
+        count: usize,
+        /// The generator's seed.
+        seed: u64,
+    },
+}
+
+/// Reports a table's progress: stages of simulated runs, and each run as it finishes
+/// (from worker threads).
+pub trait Progress: Sync {
+    /// A stage begins: `name` (empty for the table itself) of `runs` runs or searches.
+    fn stage(&self, name: &str, runs: usize);
+    /// One run or threshold search finished.
+    fn done(&self);
+}
+
+/// Progress reporting that shows nothing.
+impl Progress for () {
+    fn stage(&self, _: &str, _: usize) {}
+    fn done(&self) {}
+}
+
+/// The circuit a table runs on: its file's text, where it came from (for messages and
+/// tolerance cases) and its parsed form.
+#[derive(Clone, Copy, Debug)]
+pub struct Source<'a> {
+    /// The circuit file's text.
+    pub text: &'a str,
+    /// Its name in messages.
+    pub path: &'a str,
+    /// The parsed circuit (nominal values).
+    pub circuit: &'a Circuit,
+}
+
+/// Builds the whole table: settles the protector (and every tolerance case), screens the
+/// tolerances where asked, finds the static thresholds of every case and runs every test
+/// at every phase for every case. Returns the table and the settled nominal protector
+/// (for further runs, such as a report's trip map).
+///
+/// A threshold search that fails for a tolerance case is reported in the table's notes and
+/// that case left out of the threshold spread; any other failure stops the table.
+pub fn build(
+    source: Source<'_>,
+    options: &EventOptions,
+    plan: &Plan,
+    cases: Cases,
+    progress: &dyn Progress,
+) -> Result<(Table, Settled), String> {
+    use crate::tolerance::{self, MAX_CORNER_VALUES};
+    let Source {
+        text,
+        path,
+        circuit,
+    } = source;
+    // Mistakes in the request first, before any simulation.
+    let n_values = circuit.tolerances.len();
+    let asked = match cases {
+        Cases::Nominal => None,
+        Cases::Corners { .. } => Some("--corners"),
+        Cases::MonteCarlo { .. } => Some("--monte-carlo"),
+    };
+    if let (Some(what), 0) = (asked, n_values) {
+        return Err(format!(
+            "{what}: {path} has no values with a tolerance (docs/circuit-format.md)"
+        ));
+    }
+    if let Cases::Corners { screen: Some(k) } = cases {
+        if k == 0 || k > MAX_CORNER_VALUES {
+            return Err(format!(
+                "--screen {k}: keep from 1 to {MAX_CORNER_VALUES} values for the corners"
+            ));
+        }
+    }
+    let settled = crate::scenario::settle(circuit, options).map_err(|e| format!("{path}: {e}"))?;
+    let mut screening = Vec::new();
+    let (cases, description) = match cases {
+        Cases::Nominal => (vec![tolerance::nominal()], String::new()),
+        Cases::Corners { screen } => {
+            let keep = screen.unwrap_or(MAX_CORNER_VALUES).min(n_values);
+            if keep < n_values {
+                let per_case = plan.tests.len() + usize::from(plan.thresholds);
+                progress.stage("screening", 2 * n_values * per_case);
+                screening = screen_values(source, options, plan, keep, &|| progress.done())?;
+                let kept: Vec<usize> = circuit
+                    .tolerances
+                    .iter()
+                    .enumerate()
+                    .filter(|(_, t)| screening.iter().any(|e| e.kept && e.field == t.field))
+                    .map(|(i, _)| i)
+                    .collect();
+                let cases = tolerance::corners_of(&circuit.tolerances, &kept)
+                    .map_err(|e| format!("--corners: {e}"))?;
+                let description = format!(
+                    "{} tolerance cases (nominal and every corner of the {keep} value{} kept \
+                     by screening all {n_values}; the others as written)",
+                    cases.len(),
+                    if keep == 1 { "" } else { "s" }
+                );
+                (cases, description)
+            } else {
+                let cases = tolerance::corners(&circuit.tolerances)
+                    .map_err(|e| format!("--corners: {e}"))?;
+                let description = format!(
+                    "{} tolerance cases (nominal and every corner of {n_values} values)",
+                    cases.len()
+                );
+                (cases, description)
+            }
+        }
+        Cases::MonteCarlo { count, seed } => {
+            let cases = tolerance::monte_carlo(&circuit.tolerances, count, seed);
+            let description = format!(
+                "{} tolerance cases (nominal and {count} Monte Carlo samples of {n_values} \
+                 values, uniform between their limits, seed {seed})",
+                cases.len()
+            );
+            (cases, description)
+        }
+    };
+    let extra: Vec<(Circuit, Settled)> = cases[1..]
+        .par_iter()
+        .map(|case| {
+            let c = crate::circuit_file::parse_circuit_with(text, path, &case.values)
+                .map_err(|e| format!("{}: {e}", case.label))?;
+            let s = crate::scenario::settle(&c, options)
+                .map_err(|e| format!("{path} ({}): {e}", case.label))?;
+            Ok((c, s))
+        })
+        .collect::<Result<_, String>>()?;
+    let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
+    case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
+    let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
+    progress.stage("", runs + usize::from(plan.thresholds) * case_refs.len());
+    // The static thresholds of every case (the nominal first); the table shows the
+    // nominal case's and the spread over all.
+    let mut notes: Vec<String> = Vec::new();
+    let mut all_thresholds: Vec<StaticThresholds> = Vec::new();
+    if plan.thresholds {
+        for (k, (s, c)) in case_refs.iter().enumerate() {
+            let found = crate::thresholds::find(s, c, &Default::default());
+            progress.done();
+            match found {
+                Ok(t) => all_thresholds.push(t),
+                Err(e) if k == 0 => return Err(format!("{path}: thresholds: {e}")),
+                Err(e) => notes.push(format!(
+                    "{}: the static thresholds could not be found ({e}); this case is left \
+                     out of the threshold spread",
+                    cases[k].label
+                )),
+            }
+        }
+    }
+    let rows =
+        run_cases(&case_refs, plan, &|| progress.done()).map_err(|e| format!("{path}: {e}"))?;
+    let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
+    let table = Table {
+        circuit: circuit.title.clone(),
+        plan: plan.title.clone(),
+        nominal_rms_v: settled.rms,
+        frequency_hz: settled.frequency_hz,
+        phases_deg: plan.phases.clone(),
+        rows,
+        thresholds: all_thresholds.into_iter().next(),
+        runs,
+        tolerance_cases: description,
+        threshold_spread,
+        screening,
+        notes,
+    };
+    Ok((table, settled))
 }
 
 /// The spread of the static thresholds over tolerance cases, volts.

@@ -216,8 +216,12 @@ fn screening_keeps_the_value_that_sets_the_thresholds() {
         thresholds: true,
     };
     let options = EventOptions::default();
-    let effects =
-        sagtrip::table::screen(&text, "guard", &guard, &options, &plan, 1, &|| {}).unwrap();
+    let source = sagtrip::table::Source {
+        text: &text,
+        path: "guard",
+        circuit: &guard,
+    };
+    let effects = sagtrip::table::screen_values(source, &options, &plan, 1, &|| {}).unwrap();
     assert_eq!(effects.len(), 2);
     assert_eq!(effects[0].field, "part.r_bot.resistance");
     assert!(effects[0].kept && !effects[1].kept);
