@@ -465,21 +465,15 @@ pub fn screen_values(
     keep: usize,
     done: &(dyn Fn() + Sync),
 ) -> Result<Vec<Effect>, String> {
-    let Source {
-        text,
-        path,
-        circuit,
-    } = source;
+    let circuit = source.circuit;
     let mut first_phase = plan.clone();
     first_phase.phases.truncate(1);
     let cases = crate::tolerance::one_at_a_time(&circuit.tolerances);
     let measured: Vec<Vec<Quantity>> = cases
         .par_iter()
         .map(|case| {
-            let c = crate::circuit_file::parse_circuit_with(text, path, &case.values)
-                .map_err(|e| format!("screening, {}: {e}", case.label))?;
-            let s = crate::scenario::settle(&c, options)
-                .map_err(|e| format!("screening, {}: {e}", case.label))?;
+            let (c, s) =
+                settle_case(source, options, case).map_err(|e| format!("screening, {e}"))?;
             let rows = run_cases(&[(&s, &c)], &first_phase, done)?;
             let thresholds = if plan.thresholds {
                 // A failed search leaves the thresholds missing: their change counts fully.
@@ -493,6 +487,19 @@ pub fn screen_values(
         })
         .collect::<Result<_, String>>()?;
     Ok(crate::tolerance::rank(&circuit.tolerances, &measured, keep))
+}
+
+/// The circuit of one tolerance case, powered up and settled.
+fn settle_case(
+    source: Source<'_>,
+    options: &EventOptions,
+    case: &crate::tolerance::Case,
+) -> Result<(Circuit, Settled), String> {
+    let c = crate::circuit_file::parse_circuit_with(source.text, source.path, &case.values)
+        .map_err(|e| format!("{}: {e}", case.label))?;
+    let s = crate::scenario::settle(&c, options)
+        .map_err(|e| format!("{} ({}): {e}", source.path, case.label))?;
+    Ok((c, s))
 }
 
 /// Which tolerance cases a table runs besides the nominal circuit.
@@ -558,11 +565,7 @@ pub fn build(
     progress: &dyn Progress,
 ) -> Result<(Table, Settled), String> {
     use crate::tolerance::{self, MAX_CORNER_VALUES};
-    let Source {
-        text,
-        path,
-        circuit,
-    } = source;
+    let Source { path, circuit, .. } = source;
     // Mistakes in the request first, before any simulation.
     let n_values = circuit.tolerances.len();
     let asked = match cases {
@@ -630,13 +633,7 @@ pub fn build(
     };
     let extra: Vec<(Circuit, Settled)> = cases[1..]
         .par_iter()
-        .map(|case| {
-            let c = crate::circuit_file::parse_circuit_with(text, path, &case.values)
-                .map_err(|e| format!("{}: {e}", case.label))?;
-            let s = crate::scenario::settle(&c, options)
-                .map_err(|e| format!("{path} ({}): {e}", case.label))?;
-            Ok((c, s))
-        })
+        .map(|case| settle_case(source, options, case))
         .collect::<Result<_, String>>()?;
     let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
     case_refs.extend(extra.iter().map(|(c, s)| (s, c)));

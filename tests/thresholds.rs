@@ -67,17 +67,13 @@ fn hand_thresholds(guard: &Circuit, vz0: f64, r_top: f64, r_bot: f64) -> (f64, f
     )
 }
 
-#[test]
-fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
-    let t = guard_thresholds();
-    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
-    let (uv_hand, ov_hand) = hand_thresholds(&guard, 5.1, 68e3, 15e3);
+/// The bar: both trip thresholds within 3% of the hand calculation.
+fn assert_near_hand(t: &StaticThresholds, uv_hand: f64, ov_hand: f64) {
     let uv = t.under.trip.unwrap().volts;
     let ov = t.over.trip.unwrap().volts;
     eprintln!(
         "under-voltage trip {uv:.1} V (hand {uv_hand:.1} V), over {ov:.1} V (hand {ov_hand:.1} V)"
     );
-    // The bar: within 3% of the hand calculation.
     assert!(
         (uv - uv_hand).abs() / uv_hand < 0.03,
         "under-voltage trip {uv:.1} V, hand {uv_hand:.1} V"
@@ -86,6 +82,14 @@ fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
         (ov - ov_hand).abs() / ov_hand < 0.03,
         "over-voltage trip {ov:.1} V, hand {ov_hand:.1} V"
     );
+}
+
+#[test]
+fn thresholds_agree_with_a_hand_calculation_from_the_divider_and_the_zener() {
+    let t = guard_thresholds();
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let (uv_hand, ov_hand) = hand_thresholds(&guard, 5.1, 68e3, 15e3);
+    assert_near_hand(&t, uv_hand, ov_hand);
     // Each bracket is within the resolution asked and holds its threshold.
     for th in [t.under.trip, t.under.reset, t.over.trip, t.over.reset] {
         let th = th.unwrap();
@@ -164,15 +168,5 @@ fn the_lowest_tolerance_corner_agrees_with_a_hand_calculation() {
         limit("part.r_top.resistance"),
         limit("part.r_bot.resistance"),
     );
-    let uv = t.under.trip.unwrap().volts;
-    let ov = t.over.trip.unwrap().volts;
-    // The bar for the hand calculation: within 3%.
-    assert!(
-        (uv - uv_hand).abs() / uv_hand < 0.03,
-        "under-voltage trip {uv:.1} V, hand {uv_hand:.1} V"
-    );
-    assert!(
-        (ov - ov_hand).abs() / ov_hand < 0.03,
-        "over-voltage trip {ov:.1} V, hand {ov_hand:.1} V"
-    );
+    assert_near_hand(&t, uv_hand, ov_hand);
 }
