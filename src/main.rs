@@ -2366,7 +2366,11 @@ struct Bar(indicatif::ProgressBar);
 
 impl sagtrip::table::Progress for Bar {
     fn stage(&self, name: &str, runs: usize) {
-        self.0.set_message(name.to_string());
+        self.0.set_message(if name.is_empty() {
+            String::new()
+        } else {
+            format!("{name} ")
+        });
         self.0.set_length(runs as u64);
         self.0.set_position(0);
     }
@@ -2476,7 +2480,7 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
             durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
             phases_deg: vec![0.0, 90.0],
         };
-        progress.stage("trip map ", map_grid.points().len());
+        progress.stage("trip map", map_grid.points().len());
         let points =
             sagtrip::sweep::run_grid(&settled, &circuit, &map_grid, DEFAULT_EDGE_S, &|| {
                 bar.inc(1)
