@@ -2335,8 +2335,8 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
                 .collect();
             let verdict = if r.relay_chatters {
                 "relay chatters"
-            } else if r.comparator_toggles.iter().any(|(_, k)| *k > 2) {
-                "comparator only"
+            } else if r.most_toggles() > 2 {
+                "comparator only (a slower ramp may make the relay chatter)"
             } else {
                 "none"
             };

@@ -738,13 +738,10 @@ fn threshold_rows(t: &StaticThresholds) -> Vec<[String; 5]> {
     [&t.under, &t.over]
         .into_iter()
         .map(|s| {
-            let ramp = s.ramp.as_ref().map_or("-".to_string(), |r| {
-                if r.relay_chatters {
-                    format!("relay chatters ({} armature moves)", r.relay_transitions)
-                } else {
-                    "one trip, one reset".to_string()
-                }
-            });
+            let ramp = s
+                .ramp
+                .as_ref()
+                .map_or("-".to_string(), crate::thresholds::Ramp::verdict);
             [
                 match s.side {
                     crate::thresholds::Side::Under => "under-voltage",

@@ -89,6 +89,34 @@ pub struct Ramp {
     pub comparator_toggles: Vec<(String, usize)>,
 }
 
+impl Ramp {
+    /// The most toggles of any one comparator's output.
+    pub fn most_toggles(&self) -> usize {
+        self.comparator_toggles
+            .iter()
+            .map(|(_, k)| *k)
+            .max()
+            .unwrap_or(0)
+    }
+
+    /// What the ramp showed, for a report: `relay chatters (N armature moves)`, `one trip,
+    /// one reset; a comparator toggled N times (a slower ramp may make the relay chatter)`
+    /// when the relay did not follow a toggling comparator, or `one trip, one reset`.
+    pub fn verdict(&self) -> String {
+        let toggles = self.most_toggles();
+        if self.relay_chatters {
+            format!("relay chatters ({} armature moves)", self.relay_transitions)
+        } else if toggles > 2 {
+            format!(
+                "one trip, one reset; a comparator toggled {toggles} times (a slower ramp may \
+                 make the relay chatter)"
+            )
+        } else {
+            "one trip, one reset".to_string()
+        }
+    }
+}
+
 /// Both thresholds of one side, their hysteresis and the ramp through them.
 #[derive(Clone, Debug, Serialize)]
 pub struct SideThresholds {
@@ -328,4 +356,30 @@ pub fn find(
         under: under?,
         over: over?,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ramp(transitions: usize, toggles: usize) -> Ramp {
+        Ramp {
+            far_percent: 80.0,
+            rate_v_per_s: 4.0,
+            trip_v: Some(200.0),
+            reconnect_v: Some(201.0),
+            relay_transitions: transitions,
+            relay_chatters: transitions > 2,
+            comparator_toggles: vec![("cmp_a".into(), 1), ("cmp_b".into(), toggles)],
+        }
+    }
+
+    #[test]
+    fn the_verdict_names_a_toggling_comparator_the_relay_did_not_follow() {
+        assert_eq!(ramp(2, 1).verdict(), "one trip, one reset");
+        assert_eq!(ramp(6, 900).verdict(), "relay chatters (6 armature moves)");
+        let quiet_relay = ramp(2, 406).verdict();
+        assert!(quiet_relay.starts_with("one trip, one reset; a comparator toggled 406 times"));
+        assert_eq!(ramp(2, 406).most_toggles(), 406);
+    }
 }
