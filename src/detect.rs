@@ -59,6 +59,17 @@ pub enum EventKind {
     Swell,
 }
 
+impl EventKind {
+    /// The name reports use (the same as in JSON): `dip`, `interruption` or `swell`.
+    pub fn name(self) -> &'static str {
+        match self {
+            EventKind::Dip => "dip",
+            EventKind::Interruption => "interruption",
+            EventKind::Swell => "swell",
+        }
+    }
+}
+
 /// A detected event.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Event {
@@ -547,6 +558,13 @@ pub fn detect(
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn kind_names_match_the_json() {
+        for k in [EventKind::Dip, EventKind::Interruption, EventKind::Swell] {
+            assert_eq!(serde_json::to_value(k).unwrap(), k.name());
+        }
+    }
 
     #[test]
     fn en_50160_cells() {

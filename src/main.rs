@@ -1942,10 +1942,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
                 writeln!(
                     w,
                     "{},{},{},{},{},{},{},{}",
-                    serde_json::to_value(e.kind)
-                        .ok()
-                        .and_then(|v| v.as_str().map(String::from))
-                        .unwrap_or_default(),
+                    e.kind.name(),
                     e.start_s,
                     e.duration_s,
                     e.level_pct,
@@ -2010,10 +2007,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
             say!(
                 out,
                 "{:<13} {:>11.4} {:>9.1}ms {:>8.2}%  {:<36} {:<8} {}{}",
-                serde_json::to_value(e.kind)
-                    .ok()
-                    .and_then(|v| v.as_str().map(String::from))
-                    .unwrap_or_default(),
+                e.kind.name(),
                 e.start_s,
                 e.duration_s * 1e3,
                 e.level_pct,
@@ -2156,10 +2150,7 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
             say!(
                 out,
                 "{:<13} {:>10.4} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
-                serde_json::to_value(e.kind)
-                    .ok()
-                    .and_then(|v| v.as_str().map(String::from))
-                    .unwrap_or_default(),
+                e.kind.name(),
                 e.start_s,
                 e.duration_s * 1e3,
                 e.level_pct,

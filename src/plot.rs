@@ -862,37 +862,37 @@ fn draw_thresholds<DB: DrawingBackend>(
         .light_line_style(RGBColor(235, 235, 235))
         .draw()
         .map_err(e)?;
-    // The band where the load stays connected from normal: between the two trips.
+    // The band where the load stays connected from normal (between the two trips), and
+    // the band where it reconnects after a trip (between the two resets).
     let under_trip = t.under.trip.map_or(lo, |x| x.volts);
     let over_trip = t.over.trip.map_or(hi, |x| x.volts);
-    chart
-        .draw_series(std::iter::once(Rectangle::new(
-            [(under_trip, 1.1), (over_trip, 1.9)],
-            RGBColor(200, 235, 200).filled(),
-        )))
-        .map_err(e)?
-        .label("load stays connected")
-        .legend(|(x, y)| {
-            Rectangle::new(
-                [(x, y - 5), (x + 16, y + 5)],
-                RGBColor(200, 235, 200).filled(),
-            )
-        });
     let under_reset = t.under.reset.map_or(under_trip, |x| x.volts);
     let over_reset = t.over.reset.map_or(over_trip, |x| x.volts);
-    chart
-        .draw_series(std::iter::once(Rectangle::new(
-            [(under_reset, 0.1), (over_reset, 0.9)],
-            RGBColor(200, 220, 245).filled(),
-        )))
-        .map_err(e)?
-        .label("load reconnects (after the delay)")
-        .legend(|(x, y)| {
-            Rectangle::new(
-                [(x, y - 5), (x + 16, y + 5)],
-                RGBColor(200, 220, 245).filled(),
-            )
-        });
+    for (x0, x1, y0, colour, label) in [
+        (
+            under_trip,
+            over_trip,
+            1.1,
+            RGBColor(200, 235, 200),
+            "load stays connected",
+        ),
+        (
+            under_reset,
+            over_reset,
+            0.1,
+            RGBColor(200, 220, 245),
+            "load reconnects (after the delay)",
+        ),
+    ] {
+        chart
+            .draw_series(std::iter::once(Rectangle::new(
+                [(x0, y0), (x1, y0 + 0.8)],
+                colour.filled(),
+            )))
+            .map_err(e)?
+            .label(label)
+            .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 16, y + 5)], colour.filled()));
+    }
     chart
         .draw_series(std::iter::once(PathElement::new(
             vec![(nominal, 0.0), (nominal, 2.0)],

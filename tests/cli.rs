@@ -11,6 +11,27 @@ fn sagtrip(args: &[&str]) -> Output {
         .expect("run sagtrip")
 }
 
+/// Runs sagtrip and requires success, showing its error output otherwise.
+fn sagtrip_ok(args: &[&str]) -> Output {
+    let out = sagtrip(args);
+    assert!(
+        out.status.success(),
+        "sagtrip {args:?}: {}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    out
+}
+
+/// Runs sagtrip, requires a failure whose error output contains `expected`, and returns
+/// that output.
+fn sagtrip_fails(args: &[&str], expected: &str) -> String {
+    let out = sagtrip(args);
+    let err = String::from_utf8_lossy(&out.stderr).to_string();
+    assert!(!out.status.success(), "sagtrip {args:?} succeeded");
+    assert!(err.contains(expected), "sagtrip {args:?}: {err}");
+    err
+}
+
 fn temp_path(name: &str) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("sagtrip-cli-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
@@ -19,8 +40,7 @@ fn temp_path(name: &str) -> PathBuf {
 
 #[test]
 fn check_lists_parts_nodes_and_parameter_sets() {
-    let out = sagtrip(&["check", "--circuit", "examples/bridge-rectifier.toml"]);
-    assert!(out.status.success());
+    let out = sagtrip_ok(&["check", "--circuit", "examples/bridge-rectifier.toml"]);
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("valid"));
     assert!(text.contains("parts (5)"));
@@ -49,7 +69,7 @@ fn every_example_circuit_is_valid() {
 #[test]
 fn run_writes_a_csv_trace() {
     let trace = temp_path("bridge.csv");
-    let out = sagtrip(&[
+    sagtrip_ok(&[
         "run",
         "--circuit",
         "examples/bridge-rectifier.toml",
@@ -62,11 +82,6 @@ fn run_writes_a_csv_trace() {
         "--probe",
         "current:load",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let csv = std::fs::read_to_string(&trace).unwrap();
     let mut lines = csv.lines();
     assert_eq!(lines.next().unwrap(), "time_s,rail_V,load_A");
@@ -84,7 +99,7 @@ fn run_writes_a_csv_trace() {
 
 #[test]
 fn run_prints_json() {
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "run",
         "--circuit",
         "examples/rc-step.toml",
@@ -94,7 +109,6 @@ fn run_prints_json() {
         "--probe",
         "out",
     ]);
-    assert!(out.status.success());
     let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let probe = &value["probes"][0];
     assert_eq!(probe["probe"], "out_V");
@@ -132,18 +146,20 @@ fn a_broken_file_fails_with_positions_and_writes_nothing() {
 
 #[test]
 fn a_missing_file_and_a_bad_probe_are_clear_errors() {
-    let out = sagtrip(&["check", "--circuit", "examples/no-such-file.toml"]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("cannot read circuit file"));
-    let out = sagtrip(&[
-        "run",
-        "--circuit",
-        "examples/rc-step.toml",
-        "--probe",
-        "nowhere",
-    ]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("no node named `nowhere`"));
+    sagtrip_fails(
+        &["check", "--circuit", "examples/no-such-file.toml"],
+        "cannot read circuit file",
+    );
+    sagtrip_fails(
+        &[
+            "run",
+            "--circuit",
+            "examples/rc-step.toml",
+            "--probe",
+            "nowhere",
+        ],
+        "no node named `nowhere`",
+    );
 }
 
 #[test]
@@ -155,12 +171,7 @@ fn help_carries_the_safety_caution() {
 
 #[test]
 fn run_without_a_circuit_powers_up_the_reference_guard() {
-    let out = sagtrip(&["run", "--probe", "sense", "--probe", "vcc", "--json"]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = sagtrip_ok(&["run", "--probe", "sense", "--probe", "vcc", "--json"]);
     let value: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert!(value["circuit"]
         .as_str()
@@ -191,8 +202,7 @@ fn run_without_a_circuit_powers_up_the_reference_guard() {
 
 #[test]
 fn check_without_a_circuit_lists_the_reference_guard() {
-    let out = sagtrip(&["check"]);
-    assert!(out.status.success());
+    let out = sagtrip_ok(&["check"]);
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("built-in reference guard"));
     assert!(text.contains("relay          relay"));
@@ -207,7 +217,7 @@ fn profiles_lists_the_iec_tests_and_synth_writes_a_wav() {
     assert!(text.contains("class3-dip-40"));
     assert!(text.contains("IEC 61000-4-11 Table 1"));
     let wav = temp_path("dip.wav");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "synth",
         "class3-dip-40@90",
         "--out",
@@ -217,11 +227,6 @@ fn profiles_lists_the_iec_tests_and_synth_writes_a_wav() {
         "--rate",
         "8000",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("650.538 V per full scale"), "{text}");
     let reader = hound::WavReader::open(&wav).unwrap();
@@ -231,21 +236,13 @@ fn profiles_lists_the_iec_tests_and_synth_writes_a_wav() {
 
 #[test]
 fn a_malformed_event_is_refused_with_a_marker() {
-    let out = sagtrip(&["run", "--event", "dip:40%:10cycles"]);
-    assert!(!out.status.success());
-    let err = String::from_utf8(out.stderr).unwrap();
-    assert!(err.contains("found `10cycles`"), "{err}");
+    let err = sagtrip_fails(&["run", "--event", "dip:40%:10cycles"], "found `10cycles`");
     assert!(err.contains("        ^^^^^^^^"), "{err}");
 }
 
 #[test]
 fn run_event_json_has_the_promised_fields() {
-    let out = sagtrip(&["run", "--event", "interrupt:10cyc", "--json"]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    let out = sagtrip_ok(&["run", "--event", "interrupt:10cyc", "--json"]);
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(v["tripped"], true);
     assert!(v["trip_latency_ms"].as_f64().unwrap() > 10.0);
@@ -261,18 +258,13 @@ fn event_plots_are_written_as_svg_and_png() {
     let svg = temp_path("dip.svg");
     let png = temp_path("dip.png");
     for path in [&svg, &png] {
-        let out = sagtrip(&[
+        sagtrip_ok(&[
             "run",
             "--event",
             "dip:40%:10cyc@90",
             "--plot",
             path.to_str().unwrap(),
         ]);
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
     }
     let text = std::fs::read_to_string(&svg).unwrap();
     for label in [
@@ -297,7 +289,7 @@ fn event_plots_are_written_as_svg_and_png() {
 fn sweep_writes_the_map_and_its_tables() {
     let dir = temp_path("sweep-out");
     let svg = temp_path("map.svg");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "sweep",
         "--levels",
         "0:80:80",
@@ -314,11 +306,6 @@ fn sweep_writes_the_map_and_its_tables() {
         "--plot",
         svg.to_str().unwrap(),
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(
         text.contains("4 points (2 levels x 2 durations x 1 phases)"),
@@ -400,18 +387,19 @@ fn an_interrupted_sweep_resumes_where_it_stopped() {
         serde_json::from_str(&std::fs::read_to_string(dir.join("sweep.json")).unwrap()).unwrap();
     assert_eq!(json["points"].as_array().unwrap().len(), 9);
     // Other settings cannot resume the folder.
-    let out = sagtrip(&[
-        "sweep",
-        "--levels",
-        "0:80:80",
-        "--quiet",
-        "--no-refine",
-        "--out",
-        d,
-        "--resume",
-    ]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("other settings"));
+    sagtrip_fails(
+        &[
+            "sweep",
+            "--levels",
+            "0:80:80",
+            "--quiet",
+            "--no-refine",
+            "--out",
+            d,
+            "--resume",
+        ],
+        "other settings",
+    );
 }
 
 #[test]
@@ -437,12 +425,7 @@ fn shards_merge_into_the_whole_sweep() {
     let mut args = vec!["merge"];
     args.extend(folders.iter().map(String::as_str));
     args.extend(["--out", merged.to_str().unwrap()]);
-    let out = sagtrip(&args);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    sagtrip_ok(&args);
     let read = |dir: &std::path::Path| {
         let v: serde_json::Value =
             serde_json::from_str(&std::fs::read_to_string(dir.join("sweep.json")).unwrap())
@@ -456,7 +439,7 @@ fn shards_merge_into_the_whole_sweep() {
 #[test]
 fn detect_reports_the_events_of_a_synthesised_recording() {
     let wav = temp_path("mixed.wav");
-    let out = sagtrip(&[
+    sagtrip_ok(&[
         "synth",
         "dip:40%:10cyc;gap:1s;swell:125%:20cyc;gap:500ms;interrupt:60cyc",
         "--out",
@@ -464,10 +447,9 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
         "--format",
         "int24",
     ]);
-    assert!(out.status.success());
     let csv = temp_path("events.csv");
     let png = temp_path("events.png");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "detect",
         wav.to_str().unwrap(),
         "--calibrate",
@@ -478,11 +460,6 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
         "--plot",
         png.to_str().unwrap(),
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     let events = v["events"].as_array().unwrap();
     let kinds: Vec<&str> = events.iter().map(|e| e["kind"].as_str().unwrap()).collect();
@@ -494,15 +471,13 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
     let bytes = std::fs::read(&png).unwrap();
     assert_eq!(&bytes[..8], b"\x89PNG\r\n\x1a\n");
     // Without a scale a WAV recording is refused.
-    let out = sagtrip(&["detect", wav.to_str().unwrap()]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("--volts-per-full-scale"));
+    sagtrip_fails(&["detect", wav.to_str().unwrap()], "--volts-per-full-scale");
 }
 
 #[test]
 fn replay_reports_each_event_and_the_nuisance_trips() {
     let wav = temp_path("replay.wav");
-    let out = sagtrip(&[
+    sagtrip_ok(&[
         "synth",
         "dip:40%:10cyc;gap:1s;dip:95%:20cyc",
         "--out",
@@ -510,9 +485,8 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
         "--tail",
         "40cyc",
     ]);
-    assert!(out.status.success());
     let svg = temp_path("replay.svg");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "replay",
         wav.to_str().unwrap(),
         "--calibrate",
@@ -521,11 +495,6 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
         "--plot",
         svg.to_str().unwrap(),
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     // The 40% dip is detected and trips the guard; the 95% one is not an event at all.
     assert_eq!(v["summary"]["events"], 1);
@@ -547,7 +516,7 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
 #[test]
 fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
     let plot = temp_path("thresholds.svg");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "thresholds",
         "--resolution",
         "1V",
@@ -559,11 +528,6 @@ fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
         "--plot",
         plot.to_str().unwrap(),
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     for side in ["under", "over"] {
         for field in ["trip", "reset"] {
@@ -581,16 +545,14 @@ fn thresholds_reports_both_sides_as_json_and_refuses_a_zero_resolution() {
     assert!(v["over"]["trip"]["volts"].as_f64().unwrap() > 230.0);
     let svg = std::fs::read_to_string(&plot).unwrap();
     assert!(svg.contains("trip (from normal)") && svg.contains("nominal 230 V"));
-    let out = sagtrip(&["thresholds", "--resolution", "0V"]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("--resolution"));
+    sagtrip_fails(&["thresholds", "--resolution", "0V"], "--resolution");
 }
 
 #[test]
 fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
     let md = temp_path("table.md");
     let csv = temp_path("table.csv");
-    let out = sagtrip(&[
+    let out = sagtrip_ok(&[
         "table",
         "--plan",
         concat!(
@@ -605,11 +567,6 @@ fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
         csv.to_str().unwrap(),
         "--quiet",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let stdout = String::from_utf8_lossy(&out.stdout);
     assert!(
         stdout.contains("| deep dip | IEC 61000-4-11 Table 1 (dips) | `dip:40%:10cyc` | trips |")
@@ -628,19 +585,17 @@ fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
     // A mistake in the plan is reported with its place, before any simulation.
     let plan = temp_path("bad-plan.toml");
     std::fs::write(&plan, "[[test]]\nname = \"x\"\nevent = \"dip:140%:1cyc\"\n").unwrap();
-    let out = sagtrip(&["table", "--plan", plan.to_str().unwrap()]);
-    assert!(!out.status.success());
-    let err = String::from_utf8_lossy(&out.stderr);
-    assert!(
-        err.contains("bad-plan.toml:3:") && err.contains("test.1.event"),
-        "{err}"
+    let err = sagtrip_fails(
+        &["table", "--plan", plan.to_str().unwrap()],
+        "bad-plan.toml:3:",
     );
+    assert!(err.contains("test.1.event"), "{err}");
 }
 
 #[test]
 fn table_writes_a_self_contained_html_report() {
     let html = temp_path("report.html");
-    let out = sagtrip(&[
+    sagtrip_ok(&[
         "table",
         "--plan",
         concat!(
@@ -653,11 +608,6 @@ fn table_writes_a_self_contained_html_report() {
         html.to_str().unwrap(),
         "--quiet",
     ]);
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
     let page = std::fs::read_to_string(&html).unwrap();
     assert!(page.starts_with("<!DOCTYPE html>"));
     assert!(page.contains("<td>deep dip</td>"));
@@ -695,12 +645,7 @@ fn table_over_tolerance_cases_is_reproducible() {
             "--quiet",
         ];
         args.extend_from_slice(extra);
-        let out = sagtrip(&args);
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        let out = sagtrip_ok(&args);
         (
             String::from_utf8_lossy(&out.stdout).to_string(),
             std::fs::read_to_string(path).unwrap(),
@@ -727,15 +672,11 @@ fn table_over_tolerance_cases_is_reproducible() {
     ] {
         let mut args = vec!["table", "--circuit", circuit, "--quiet"];
         args.extend_from_slice(&bad);
-        let out = sagtrip(&args);
-        assert!(!out.status.success());
-        assert!(
-            String::from_utf8_lossy(&out.stderr).contains(message),
-            "{bad:?}"
-        );
+        sagtrip_fails(&args, message);
     }
     // Tolerance cases need tolerances.
-    let out = sagtrip(&["table", "--corners", "--plan", plan.to_str().unwrap()]);
-    assert!(!out.status.success());
-    assert!(String::from_utf8_lossy(&out.stderr).contains("no values with a tolerance"));
+    sagtrip_fails(
+        &["table", "--corners", "--plan", plan.to_str().unwrap()],
+        "no values with a tolerance",
+    );
 }

@@ -336,13 +336,9 @@ fn switching_levels(text: &str) -> (Vec<f64>, Vec<f64>) {
     (rising_out, falling_out)
 }
 
-#[test]
-fn comparator_with_positive_feedback_switches_at_the_resistor_ratio_thresholds() {
-    // Inverting Schmitt trigger: the input drives the minus pin; the plus pin is the
-    // divider between a 5 V reference (R1 = 10 kohm) and the output (R2 = 100 kohm plus the
-    // 100 ohm output resistance). Thresholds (Sedra and Smith, Microelectronic Circuits):
-    // V = (Vref R2 + Vout R1) / (R1 + R2), with Vout = 10.5 V (12 V - 1.5 V) or 0.05 V.
-    let text = r#"
+/// A 12 V supply, a 5 V reference and a 10 Hz sine from 2 V to 8 V on `in`: the bench the
+/// comparator tests add their circuit to.
+const COMPARATOR_BENCH: &str = r#"
 [part.supply]
 kind = "voltage-source"
 pins = ["vcc", "gnd"]
@@ -355,7 +351,17 @@ dc = "5V"
 kind = "voltage-source"
 pins = ["in", "gnd"]
 sine = { amplitude = "3V", offset = "5V", frequency = "10Hz" }
-[part.r_in]
+"#;
+
+#[test]
+fn comparator_with_positive_feedback_switches_at_the_resistor_ratio_thresholds() {
+    // Inverting Schmitt trigger: the input drives the minus pin; the plus pin is the
+    // divider between a 5 V reference (R1 = 10 kohm) and the output (R2 = 100 kohm plus the
+    // 100 ohm output resistance). Thresholds (Sedra and Smith, Microelectronic Circuits):
+    // V = (Vref R2 + Vout R1) / (R1 + R2), with Vout = 10.5 V (12 V - 1.5 V) or 0.05 V.
+    let text = &format!(
+        "{COMPARATOR_BENCH}{}",
+        r#"[part.r_in]
 kind = "resistor"
 pins = ["in", "gnd"]
 resistance = "10k"
@@ -370,7 +376,8 @@ resistance = "100k"
 [part.u1]
 kind = "comparator"
 pins = { plus = "plus", minus = "in", output = "out", supply_plus = "vcc", supply_minus = "gnd" }
-"#;
+"#
+    );
     let (r1, r2) = (10e3, 100e3 + 100.0);
     let upper = (5.0 * r2 + 10.5 * r1) / (r1 + r2);
     let lower = (5.0 * r2 + 0.05 * r1) / (r1 + r2);
@@ -392,20 +399,9 @@ pins = { plus = "plus", minus = "in", output = "out", supply_plus = "vcc", suppl
 fn comparator_built_in_hysteresis_is_centred_on_the_offset() {
     // Non-inverting: input on plus, 5 V on minus, 0.4 V built-in band, 0.1 V offset: the
     // output rises at 5.3 V and falls at 4.9 V (model definition, docs/models.md).
-    let text = r#"
-[part.supply]
-kind = "voltage-source"
-pins = ["vcc", "gnd"]
-dc = "12V"
-[part.reference]
-kind = "voltage-source"
-pins = ["ref", "gnd"]
-dc = "5V"
-[part.signal]
-kind = "voltage-source"
-pins = ["in", "gnd"]
-sine = { amplitude = "3V", offset = "5V", frequency = "10Hz" }
-[part.r_load]
+    let text = &format!(
+        "{COMPARATOR_BENCH}{}",
+        r#"[part.r_load]
 kind = "resistor"
 pins = ["out", "gnd"]
 resistance = "100k"
@@ -414,7 +410,8 @@ kind = "comparator"
 pins = { plus = "in", minus = "ref", output = "out", supply_plus = "vcc", supply_minus = "gnd" }
 hysteresis = "0.4V"
 input_offset = "0.1V"
-"#;
+"#
+    );
     let (rising_out, falling_out) = switching_levels(text);
     for v in &rising_out {
         assert!((v - 5.3).abs() < 0.01, "rise at {v}");

@@ -294,15 +294,7 @@ impl Device {
 
     /// Whether the device's characteristic depends on the solution.
     pub fn is_nonlinear(&self) -> bool {
-        matches!(
-            self,
-            Device::Diode { .. }
-                | Device::Comparator(_)
-                | Device::Mosfet(_)
-                | Device::Bipolar(_)
-                | Device::Regulator(_)
-                | Device::Timer(_)
-        )
+        self.has_regimes() || matches!(self, Device::Timer(_))
     }
 
     /// Prepares Newton scratch: the junction voltage that limiting starts from. It is the
