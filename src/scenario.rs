@@ -35,6 +35,26 @@ pub enum ScenarioError {
     /// A named relay or node does not exist.
     #[error("{0}")]
     Unknown(String),
+    /// The power-up did not reach the operating state within its limit: a relay never
+    /// connected its load path (normally-open contact made with the armature picked up), or
+    /// the circuit never repeated cycle after cycle. No event can be judged from there.
+    #[error(
+        "{} within the power-up limit of {limit_s} s (raise it with --power-up-limit)",
+        match relay {
+            Some(r) => format!("relay `{r}` did not connect the load (pick up and make its normally-open contact)"),
+            None => "the circuit did not settle (repeat cycle after cycle)".to_string(),
+        }
+    )]
+    NotSettled {
+        /// The relay that did not connect the load, if that was the reason.
+        relay: Option<String>,
+        /// The power-up limit, seconds.
+        limit_s: f64,
+    },
+    /// The circuit has no relay whose contact could switch a load, so no verdict on trips
+    /// can be given.
+    #[error("the circuit has no relay to switch the load: trips cannot be judged")]
+    NoRelay,
     /// The simulation failed.
     #[error(transparent)]
     Simulation(#[from] SimError),
@@ -119,10 +139,12 @@ pub struct EventOptions {
     pub settle_tolerance: f64,
     /// Settled also needs this many quiet cycles in a row (no discrete change). Default 3.
     pub settle_cycles: usize,
-    /// Longest power-up before the event, seconds. Default 20 s.
-    pub settle_limit_s: f64,
-    /// Longest run after the event's end, seconds. Default 10 s.
-    pub restore_limit_s: f64,
+    /// Longest power-up before the event, seconds. `None` (the default): derived from the
+    /// circuit by [`derived_limit_s`].
+    pub settle_limit_s: Option<f64>,
+    /// Longest run after the event's end, seconds. `None` (the default): derived from the
+    /// circuit by [`derived_limit_s`].
+    pub restore_limit_s: Option<f64>,
     /// Cycles recorded before the onset. Default 2.
     pub pre_cycles: usize,
     /// Skip whole cycles of a long constant stretch of an event once the circuit repeats
@@ -143,8 +165,8 @@ impl Default for EventOptions {
             rail: None,
             settle_tolerance: 5e-3,
             settle_cycles: 3,
-            settle_limit_s: 20.0,
-            restore_limit_s: 10.0,
+            settle_limit_s: None,
+            restore_limit_s: None,
             pre_cycles: 2,
             skip_steady: true,
             settings: Settings::default(),
@@ -162,10 +184,13 @@ pub struct EventRun {
     pub nominal_rms_v: f64,
     /// Nominal frequency, hertz.
     pub frequency_hz: f64,
-    /// When the power-up was judged settled, seconds.
+    /// When the power-up was judged settled (every relay connected, the circuit periodic),
+    /// seconds.
     pub settled_at_s: f64,
-    /// Whether the power-up settled within the limit (the event is applied either way).
-    pub settled: bool,
+    /// The power-up limit, seconds.
+    pub settle_limit_s: f64,
+    /// The limit on the run after the event's end, seconds.
+    pub restore_limit_s: f64,
     /// Onset of the first disturbance, seconds.
     pub onset_s: f64,
     /// End of the event, seconds.
@@ -331,17 +356,70 @@ pub struct Settled {
     comparators: Vec<(String, usize)>,
     /// When the power-up was judged settled (a rising zero crossing), seconds.
     pub settled_at_s: f64,
-    /// Whether it settled within the limit.
-    pub settled: bool,
+    /// The power-up limit used, seconds.
+    pub settle_limit_s: f64,
+    /// The limit on the run after each event's end, seconds.
+    pub restore_limit_s: f64,
     options: EventOptions,
+}
+
+/// The default power-up and restore limit of a circuit, seconds: 10 s, or five times the
+/// circuit's longest RC time constant when that is longer. Each capacitor's time constant is
+/// taken with the largest resistor at either of its pins, an upper estimate of the delay it
+/// can set: a reconnection delay that charges a capacitor through a resistor to a threshold
+/// lasts at most a few time constants.
+///
+/// ```
+/// let guard = sagtrip::circuit_file::parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+/// // c_delay 10 uF charged through r_delay 220 kohm: 2.2 s, five times 11 s.
+/// assert!((sagtrip::scenario::derived_limit_s(&guard) - 11.0).abs() < 1e-9);
+/// ```
+pub fn derived_limit_s(circuit: &Circuit) -> f64 {
+    let largest_resistor_at = |node: usize| {
+        circuit
+            .parts
+            .iter()
+            .filter(|p| p.pins.contains(&node))
+            .filter_map(|p| match p.spec {
+                PartSpec::Resistor { resistance } => Some(resistance),
+                _ => None,
+            })
+            .fold(0.0, f64::max)
+    };
+    let longest = circuit
+        .parts
+        .iter()
+        .filter_map(|p| match p.spec {
+            PartSpec::Capacitor { capacitance, .. } => Some(
+                capacitance
+                    * p.pins
+                        .iter()
+                        .filter(|&&n| n != 0)
+                        .map(|&n| largest_resistor_at(n))
+                        .fold(0.0, f64::max),
+            ),
+            _ => None,
+        })
+        .fold(0.0, f64::max);
+    (5.0 * longest).max(10.0)
 }
 
 /// Powers `circuit` up on its nominal supply until it has settled.
 pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, ScenarioError> {
     let mains = find_mains(circuit, options.mains.as_deref())?;
     let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
-    let relay = find_relay(circuit, options.relay.as_deref())?;
+    let relay = find_relay(circuit, options.relay.as_deref())?.ok_or(ScenarioError::NoRelay)?;
+    let relays: Vec<usize> = circuit
+        .parts
+        .iter()
+        .enumerate()
+        .filter(|(_, p)| matches!(p.spec, PartSpec::Relay(_)))
+        .map(|(i, _)| i)
+        .collect();
     let rail = find_rail(circuit, options.rail.as_deref())?;
+    let derived = derived_limit_s(circuit);
+    let settle_limit_s = options.settle_limit_s.unwrap_or(derived);
+    let restore_limit_s = options.restore_limit_s.unwrap_or(derived);
     let period = 1.0 / frequency_hz;
     let steady = Waveform::Sine {
         amplitude: rms * std::f64::consts::SQRT_2,
@@ -353,16 +431,31 @@ pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, Scen
     sim.set_source_waveform(mains.part, steady)?;
     let mut state = sim.start(Start::Rest)?;
     let offset = boundary_offset(&mains, period);
+    // Powered up means every relay has connected its load path (armature picked up,
+    // normally-open contact made, bounce over) and the circuit repeats cycle after cycle.
+    let connected = |sim: &Simulator, s: &SimState, r: usize| {
+        relay_state(sim, s, r).is_some_and(|m| m.operated && m.normally_open_closed)
+    };
     let settled = run_until_settled(
         &mut sim,
         &mut state,
         period,
         next_boundary(offset, period, period),
         options,
-        options.settle_limit_s,
+        settle_limit_s,
         &mut None,
-        &|_, _| true,
+        &|sim, s| relays.iter().all(|&r| connected(sim, s, r)),
     )?;
+    if !settled {
+        return Err(ScenarioError::NotSettled {
+            relay: relays
+                .iter()
+                .find(|&&r| !connected(&sim, &state, r))
+                .map(|&r| circuit.parts[r].name.clone()),
+            limit_s: settle_limit_s,
+        });
+    }
+    let relay = Some(relay);
     let pre_event_relay = relay.and_then(|r| relay_state(&sim, &state, r));
     let comparators = circuit
         .parts
@@ -381,7 +474,8 @@ pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, Scen
         rail,
         pre_event_relay,
         comparators,
-        settled,
+        settle_limit_s,
+        restore_limit_s,
         options: options.clone(),
     })
 }
@@ -532,7 +626,7 @@ impl Settled {
             period,
             next_boundary(offset, period, event_end_s + 1e-9),
             options,
-            event_end_s + options.restore_limit_s,
+            event_end_s + self.restore_limit_s,
             &mut Some(&mut trace),
             &back,
         )?;
@@ -575,7 +669,8 @@ impl Settled {
             nominal_rms_v: rms,
             frequency_hz,
             settled_at_s,
-            settled: self.settled,
+            settle_limit_s: self.settle_limit_s,
+            restore_limit_s: self.restore_limit_s,
             onset_s,
             event_end_s,
             run_end_s,

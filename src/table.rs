@@ -271,6 +271,11 @@ pub struct Row {
     pub operate_time_ms: Option<Spread>,
     /// Lowest logic-rail voltage over all runs, volts.
     pub min_rail_v: Option<f64>,
+    /// Runs that tripped and had not reconnected the load when the restore limit ended
+    /// them (their restore latency is unknown and left out of the spread).
+    pub not_reconnected_runs: usize,
+    /// The restore limit of the runs, seconds.
+    pub restore_limit_s: f64,
 }
 
 /// The whole table.
@@ -292,6 +297,10 @@ pub struct Table {
     pub thresholds: Option<StaticThresholds>,
     /// Simulated runs.
     pub runs: usize,
+    /// The power-up limit: the load must have been connected by then, seconds.
+    pub power_up_limit_s: f64,
+    /// The limit on each run after its event's end, seconds.
+    pub restore_limit_s: f64,
     /// The tolerance cases: how they were made (empty for the nominal circuit alone).
     pub tolerance_cases: String,
     /// The spread of the static thresholds over the tolerance cases.
@@ -308,6 +317,7 @@ struct RunOutcome {
     phase: f64,
     measurements: crate::measure::Measurements,
     min_rail_v: Option<f64>,
+    restore_limit_s: f64,
 }
 
 fn row(test: &PlanTest, runs: &[RunOutcome]) -> Row {
@@ -353,6 +363,11 @@ fn row(test: &PlanTest, runs: &[RunOutcome]) -> Row {
         release_time_ms: Spread::of(&collect(&|m| m.release_time_ms)),
         operate_time_ms: Spread::of(&collect(&|m| m.operate_time_ms)),
         min_rail_v: runs.iter().filter_map(|r| r.min_rail_v).reduce(f64::min),
+        not_reconnected_runs: runs
+            .iter()
+            .filter(|r| r.measurements.tripped && !r.measurements.load_connected_at_end)
+            .count(),
+        restore_limit_s: runs.iter().map(|r| r.restore_limit_s).fold(0.0, f64::max),
     }
 }
 
@@ -396,6 +411,7 @@ pub fn run_cases(
                     phase,
                     measurements: r.measurements,
                     min_rail_v: r.min_rail_v,
+                    restore_limit_s: r.restore_limit_s,
                 })
                 .map_err(|e: ScenarioError| {
                     format!("test {} at {phase}° (case {}): {e}", test.name, c + 1)
@@ -670,6 +686,8 @@ pub fn build(
         rows,
         thresholds: all_thresholds.into_iter().next(),
         runs,
+        power_up_limit_s: settled.settle_limit_s,
+        restore_limit_s: settled.restore_limit_s,
         tolerance_cases: description,
         threshold_spread,
         screening,
@@ -718,11 +736,22 @@ fn spread_cell(s: Option<Spread>) -> String {
     }
 }
 
+/// The restore latency cell: the spread over the runs that reconnected, and how many runs
+/// had not reconnected within the restore limit (never a latency that was not seen).
+fn restore_cell(r: &Row) -> String {
+    let limit = format!("not reconnected within {} s", r.restore_limit_s);
+    match (r.not_reconnected_runs, r.restore_latency_ms) {
+        (0, s) => spread_cell(s),
+        (_, None) => limit,
+        (n, s) => format!("{}; {limit} in {n} runs", spread_cell(s)),
+    }
+}
+
 /// The four timing cells of a row: trip, restore, release, operate.
 fn timing_cells(r: &Row) -> [String; 4] {
     [
         spread_cell(r.trip_latency_ms),
-        spread_cell(r.restore_latency_ms),
+        restore_cell(r),
         spread_cell(r.release_time_ms),
         spread_cell(r.operate_time_ms),
     ]
@@ -771,12 +800,15 @@ fn summary_sentence(table: &Table) -> String {
     };
     format!(
         "{} on a {:.0} V {:.0} Hz supply; each test at {} start phase{cases}; {} simulated \
-         runs. Times in ms as min / typical / max over {over} (typical: the median).",
+         runs. Times in ms as min / typical / max over {over} (typical: the median). \
+         Power-up limit {} s, restore limit {} s after each event.",
         table.plan,
         table.nominal_rms_v,
         table.frequency_hz,
         phases.join(", "),
-        table.runs
+        table.runs,
+        table.power_up_limit_s,
+        table.restore_limit_s
     )
 }
 
@@ -893,7 +925,8 @@ pub fn csv(table: &Table) -> String {
     let mut out = String::from(
         "test,source,event,outcome,trip_min_ms,trip_typical_ms,trip_max_ms,\
          restore_min_ms,restore_typical_ms,restore_max_ms,release_min_ms,release_typical_ms,\
-         release_max_ms,operate_min_ms,operate_typical_ms,operate_max_ms,min_rail_v\n",
+         release_max_ms,operate_min_ms,operate_typical_ms,operate_max_ms,min_rail_v,\
+         not_reconnected_runs,restore_limit_s\n",
     );
     let quote = |s: &str| {
         if s.contains([',', '"', '\n']) {
@@ -926,6 +959,8 @@ pub fn csv(table: &Table) -> String {
             cells.extend([a, b, c]);
         }
         cells.push(r.min_rail_v.map_or(String::new(), |v| format!("{v:.3}")));
+        cells.push(r.not_reconnected_runs.to_string());
+        cells.push(r.restore_limit_s.to_string());
         let _ = writeln!(out, "{}", cells.join(","));
     }
     out

@@ -680,3 +680,38 @@ fn table_over_tolerance_cases_is_reproducible() {
         "no values with a tolerance",
     );
 }
+
+#[test]
+fn every_event_command_refuses_a_guard_that_never_connects_the_load() {
+    // A pick-up current (40 mA) above what the coil can carry (12 V / 400 ohm = 30 mA, Ohm's
+    // law): the load is never connected, so no command may give a verdict.
+    let text = sagtrip::builtin::REFERENCE_GUARD.replace("\"22mA\"", "\"40mA\"");
+    let path = temp_path("never-connects.toml");
+    std::fs::write(&path, text).unwrap();
+    let circuit = path.to_str().unwrap();
+    let limit = ["--power-up-limit", "1s"];
+    let expected = "relay `relay` did not connect the load";
+    let recording = temp_path("never-connects.wav");
+    sagtrip_ok(&[
+        "synth",
+        "dip:40%:10cyc",
+        "--out",
+        recording.to_str().unwrap(),
+    ]);
+    for command in [
+        vec!["run", "--event", "dip:40%:10cyc"],
+        vec!["sweep", "--levels", "0:40:40", "--duration-count", "2"],
+        vec!["table"],
+        vec!["thresholds"],
+        vec!["replay", recording.to_str().unwrap()],
+    ] {
+        let mut args = command.clone();
+        args.extend(["--circuit", circuit]);
+        args.extend(limit);
+        let err = sagtrip_fails(&args, expected);
+        assert!(
+            err.contains("1 s") && err.contains("--power-up-limit"),
+            "{err}"
+        );
+    }
+}

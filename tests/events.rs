@@ -211,7 +211,7 @@ fn a_slow_ramp_makes_the_guard_chatter_and_the_hysteresis_variant_not() {
     // held low level is needed.
     let profile = parse_spec("ramp:100%-84%:3s", DEFAULT_EDGE_S).unwrap();
     let options = EventOptions {
-        restore_limit_s: 0.5,
+        restore_limit_s: Some(0.5),
         ..EventOptions::default()
     };
     let plain = run_event(
@@ -386,4 +386,88 @@ fn replaying_a_synthesised_recording_matches_the_event_run() {
         "replay {replay_restore_ms} ms vs run {} ms",
         m.restore_latency_ms.unwrap()
     );
+}
+
+/// The reference guard with one value of its file replaced.
+fn guard_with(old: &str, new: &str) -> sagtrip::circuit::Circuit {
+    let text = sagtrip::builtin::REFERENCE_GUARD;
+    assert_eq!(text.matches(old).count(), 1, "{old}");
+    circuit(&text.replace(old, new))
+}
+
+#[test]
+fn a_long_reconnection_delay_is_waited_for_before_the_event() {
+    // c_delay 100 uF instead of 10 uF: the load connects only about 7 s after power-up.
+    let slow = guard_with(
+        "pins = [\"delay\", \"gnd\"]\ncapacitance = \"10u\"",
+        "pins = [\"delay\", \"gnd\"]\ncapacitance = \"100u\"",
+    );
+    let profile = parse_spec("dip:40%:10cyc", DEFAULT_EDGE_S).unwrap();
+    let run = run_event(&slow, &profile, &EventOptions::default()).unwrap();
+    let m = &run.measurements;
+    // Powered up means the load is connected: the event must trip it, as it trips the
+    // plain guard (the delay capacitor plays no part in the trip).
+    assert!(m.tripped, "{m:?}");
+    assert!(run.settled_at_s > 6.0, "{}", run.settled_at_s);
+    let plain = run_event(
+        &circuit(sagtrip::builtin::REFERENCE_GUARD),
+        &profile,
+        &EventOptions::default(),
+    )
+    .unwrap();
+    let (slow_trip, plain_trip) = (
+        m.trip_latency_ms.unwrap(),
+        plain.measurements.trip_latency_ms.unwrap(),
+    );
+    assert!(
+        (slow_trip - plain_trip).abs() < 0.1,
+        "{slow_trip} {plain_trip}"
+    );
+    // Restore: c_delay charges from 0 V through r_delay (220 kohm) from the 12 V rail until
+    // q_drive carries the 22 mA pick-up current: square law (Shichman-Hodges, IEEE JSSC
+    // 1968) (K/2)(Vgs - 3 V)^2 = 22 mA with K = 0.5 A/V^2; the RC charge (Hayt, Kemmerly and
+    // Durbin) reaches it after RC ln(12 / (12 - Vgs)); then the 6 ms close travel and the
+    // 1.5 ms bounce. The coil's L/R (0.6 ms) and the comparators' recovery are neglected.
+    let v_on = 3.0 + (2.0 * 22e-3 / 0.5f64).sqrt();
+    let estimate_s = 220e3 * 100e-6 * (12.0 / (12.0 - v_on)).ln() + 6e-3 + 1.5e-3;
+    let restore_s = m.restore_latency_ms.unwrap() * 1e-3;
+    assert!(
+        (restore_s / estimate_s - 1.0).abs() < 0.01,
+        "restore {restore_s} s, hand estimate {estimate_s} s"
+    );
+    assert!(run.settled_after && m.load_connected_at_end);
+}
+
+#[test]
+fn a_guard_that_never_connects_the_load_is_an_error_not_a_verdict() {
+    // A pick-up current above what the coil can carry (12 V / 400 ohm = 30 mA).
+    let never = guard_with("pickup_current = \"22mA\"", "pickup_current = \"40mA\"");
+    let profile = parse_spec("dip:40%:10cyc", DEFAULT_EDGE_S).unwrap();
+    let options = EventOptions {
+        settle_limit_s: Some(2.0),
+        ..EventOptions::default()
+    };
+    let error = run_event(&never, &profile, &options)
+        .unwrap_err()
+        .to_string();
+    for part in ["relay `relay`", "power-up limit of 2 s", "--power-up-limit"] {
+        assert!(error.contains(part), "{error}");
+    }
+}
+
+#[test]
+fn a_run_cut_by_the_restore_limit_reports_no_restore_latency() {
+    // The reference guard reconnects about 0.7 s after the supply is back; a 0.3 s restore
+    // limit ends the run before that.
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let profile = parse_spec("interrupt:10cyc", DEFAULT_EDGE_S).unwrap();
+    let options = EventOptions {
+        restore_limit_s: Some(0.3),
+        ..EventOptions::default()
+    };
+    let run = run_event(&guard, &profile, &options).unwrap();
+    assert!(run.measurements.tripped);
+    assert!(!run.settled_after && !run.measurements.load_connected_at_end);
+    assert_eq!(run.measurements.restore_latency_ms, None);
+    assert_eq!(run.restore_limit_s, 0.3);
 }

@@ -11,7 +11,7 @@ use sagtrip::sweep::{cells, refine_boundary, run_grid, Grid, Outcome};
 fn refined_boundary_agrees_with_a_dense_grid() {
     let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
     let options = EventOptions {
-        restore_limit_s: 0.2,
+        restore_limit_s: Some(0.2),
         ..EventOptions::default()
     };
     let settled = settle(&guard, &options).unwrap();
@@ -61,7 +61,7 @@ fn refined_boundary_agrees_with_a_dense_grid() {
 fn a_sweep_point_order_is_the_grid_order_whatever_the_threads() {
     let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
     let options = EventOptions {
-        restore_limit_s: 0.1,
+        restore_limit_s: Some(0.1),
         ..EventOptions::default()
     };
     let settled = settle(&guard, &options).unwrap();
@@ -151,7 +151,7 @@ fn the_boundary_of_a_peak_detector_matches_its_closed_form() {
     let expected = 0.95 * (0.02f64).exp() * 100.0;
     let circuit = circuit(ANALYTIC);
     let options = EventOptions {
-        restore_limit_s: 0.1,
+        restore_limit_s: Some(0.1),
         ..EventOptions::default()
     };
     let settled = settle(&circuit, &options).unwrap();
