@@ -1084,8 +1084,18 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
     say!(out, "  armature transitions    {}", m.relay_transitions);
     say!(
         out,
+        "  load path               opened {}, closed {} (bounce excluded)",
+        m.load_path_openings,
+        m.load_path_closings
+    );
+    say!(
+        out,
         "  chatter                 {}",
-        if m.chatter { "YES" } else { "no" }
+        if m.chatter {
+            "YES (the load path opened or closed more than once per disturbance)"
+        } else {
+            "no"
+        }
     );
     say!(
         out,
@@ -2186,11 +2196,18 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
                 e.start_s,
                 e.duration_s * 1e3,
                 e.level_pct,
-                if r.tripped { "yes" } else { "no" },
+                match (r.tripped, r.chatter) {
+                    (_, true) => "chatters",
+                    (true, false) => "yes",
+                    (false, false) => "no",
+                },
                 r.trip_latency_ms
                     .map_or("-".into(), |v| format!("{v:.1} ms")),
-                r.restore_latency_ms
-                    .map_or("-".into(), |v| format!("{v:.1} ms")),
+                match (r.tripped, r.restore_latency_ms) {
+                    (_, Some(v)) => format!("{v:.1} ms"),
+                    (true, None) => "not by the end".into(),
+                    (false, None) => "-".into(),
+                },
             );
         }
     }
@@ -2354,9 +2371,9 @@ fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
                 .map(|(n, k)| format!("{n} {k}"))
                 .collect();
             let verdict = if r.relay_chatters {
-                "relay chatters"
+                "load path chatters"
             } else if r.most_toggles() > 2 {
-                "comparator only (a slower ramp may make the relay chatter)"
+                "none, but a comparator toggled (a slower ramp may make the load path chatter)"
             } else {
                 "none"
             };

@@ -42,25 +42,76 @@ pub struct Measurements {
     pub bounce_ms: Option<f64>,
     /// Armature pick-ups and drop-outs at or after onset.
     pub relay_transitions: usize,
-    /// More armature transitions than one drop-out and one pick-up per disturbance, or a
-    /// comparator output toggling more than twice per disturbance.
+    /// Openings of the load path at or after onset, contact bounce excluded (see
+    /// [`load_path_openings`]).
+    pub load_path_openings: usize,
+    /// Closings of the load path at or after onset, contact bounce excluded.
+    pub load_path_closings: usize,
+    /// The load path opened, or closed, more than once per disturbance of the event (gaps
+    /// excluded). The one definition of chatter in every report; comparator toggles are
+    /// reported apart and never called chatter.
     pub chatter: bool,
-    /// The relay part of `chatter`: more armature transitions than allowed.
-    pub relay_chatter: bool,
-    /// The comparator part of `chatter`: an output toggling more than allowed.
-    pub comparator_chatter: bool,
     /// Time the load path was open between onset and the end of the run.
     pub load_interruption_ms: f64,
     /// Whether the load path is closed at the end of the run.
     pub load_connected_at_end: bool,
 }
 
+/// One opening of the load path and its reconnection.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Opening {
+    /// When the normally-open contact broke with the armature released, seconds.
+    pub opened_s: f64,
+    /// The last make of the reconnection that followed (after its bounce), seconds; `None`
+    /// if the path was still open after the last event.
+    pub reconnected_s: Option<f64>,
+}
+
+/// The openings of the load path (the normally-open contact) in the `events` of one relay,
+/// contact bounce excluded: an opening is the contact breaking while the armature is
+/// released (a break while it is picked up is bounce), and it ends at the path's next
+/// making, moved on to the last make of that closure's bounce. `closed` is the path's state
+/// before the first event. The one definition of openings and closings that `run`,
+/// `sweep`, `table` and `replay` share.
+pub fn load_path_openings(events: &[&DiscreteEvent], closed: bool) -> Vec<Opening> {
+    let mut openings: Vec<Opening> = Vec::new();
+    let mut path_closed = closed;
+    let mut operated = closed;
+    for e in events {
+        match e.kind {
+            EventKind::PickUp => operated = true,
+            EventKind::DropOut => operated = false,
+            EventKind::NormallyOpenBroken if path_closed && !operated => {
+                path_closed = false;
+                openings.push(Opening {
+                    opened_s: e.time,
+                    reconnected_s: None,
+                });
+            }
+            EventKind::NormallyOpenMade => {
+                path_closed = true;
+                if let Some(last) = openings.last_mut() {
+                    last.reconnected_s = Some(e.time);
+                }
+            }
+            _ => {}
+        }
+    }
+    openings
+}
+
+/// Whether the load path chattered: it opened, or closed, more than once per disturbance.
+pub fn chatters(openings: &[Opening], disturbances: usize) -> bool {
+    let allowed = disturbances.max(1);
+    let closings = openings
+        .iter()
+        .filter(|o| o.reconnected_s.is_some())
+        .count();
+    openings.len() > allowed || closings > allowed
+}
+
 /// Measures the relay's response from its located events.
-pub fn measure(
-    events: &[DiscreteEvent],
-    window: &Window,
-    comparator_toggles: &[usize],
-) -> Measurements {
+pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
     let mine: Vec<&DiscreteEvent> = events
         .iter()
         .filter(|e| e.part == window.relay_part && e.time >= window.onset_s - 1e-12)
@@ -126,10 +177,8 @@ pub fn measure(
         .iter()
         .filter(|e| matches!(e.kind, EventKind::PickUp | EventKind::DropOut))
         .count();
-    let allowed = 2 * window.disturbances.max(1);
-    let relay_chatter = relay_transitions > allowed;
-    let comparator_chatter = comparator_toggles.iter().any(|&t| t > allowed);
-    let chatter = relay_chatter || comparator_chatter;
+    let openings = load_path_openings(&mine, window.closed_at_onset);
+    let chatter = chatters(&openings, window.disturbances);
     Measurements {
         tripped,
         trip_latency_ms: if tripped {
@@ -142,9 +191,12 @@ pub fn measure(
         operate_time_ms,
         bounce_ms,
         relay_transitions,
+        load_path_openings: openings.len(),
+        load_path_closings: openings
+            .iter()
+            .filter(|o| o.reconnected_s.is_some())
+            .count(),
         chatter,
-        relay_chatter,
-        comparator_chatter,
         load_interruption_ms: ms(open_total),
         load_connected_at_end: closed,
     }
@@ -216,7 +268,7 @@ mod tests {
             event(1.9065, EventKind::NormallyOpenBroken),
             event(1.907, EventKind::NormallyOpenMade),
         ];
-        let m = measure(&events, &window(), &[2, 2]);
+        let m = measure(&events, &window());
         assert!(m.tripped);
         assert!((m.trip_latency_ms.unwrap() - 53.0).abs() < 1e-9);
         assert!((m.release_time_ms.unwrap() - 3.0).abs() < 1e-9);
@@ -233,26 +285,55 @@ mod tests {
 
     #[test]
     fn ride_through_and_chatter() {
-        let m = measure(&[], &window(), &[0]);
+        let m = measure(&[], &window());
         assert!(!m.tripped);
         assert_eq!(m.trip_latency_ms, None);
         assert_eq!(m.restore_latency_ms, None);
         assert_eq!(m.load_interruption_ms, 0.0);
+        // Opens, closes, opens again for one disturbance: chatter.
         let events = [
             event(1.1, EventKind::DropOut),
             event(1.103, EventKind::NormallyOpenBroken),
             event(1.2, EventKind::PickUp),
+            event(1.206, EventKind::NormallyOpenMade),
             event(1.3, EventKind::DropOut),
+            event(1.303, EventKind::NormallyOpenBroken),
         ];
-        let m = measure(&events, &window(), &[]);
+        let m = measure(&events, &window());
         assert_eq!(m.relay_transitions, 3);
-        assert!(m.chatter && m.relay_chatter && !m.comparator_chatter);
-        // Never reconnected: open from 1.103 s to the end of the run.
-        assert!((m.load_interruption_ms - 1897.0).abs() < 1e-9);
+        assert_eq!((m.load_path_openings, m.load_path_closings), (2, 1));
+        assert!(m.chatter);
+        // Never reconnected: open from 1.103 s to 1.206 s and from 1.303 s to the end.
+        assert!((m.load_interruption_ms - (103.0 + 1697.0)).abs() < 1e-9);
         assert_eq!(m.restore_latency_ms, None);
-        // A comparator toggling five times is chatter even with a quiet relay.
-        let m = measure(&[], &window(), &[5]);
-        assert!(m.chatter && m.comparator_chatter && !m.relay_chatter);
+        // The same sequence over a two-dip event is one opening per dip: no chatter.
+        let two = Window {
+            disturbances: 2,
+            ..window()
+        };
+        assert!(!measure(&events, &two).chatter);
+    }
+
+    #[test]
+    fn bounce_is_not_chatter() {
+        // One trip and one reconnection with three bounces on closing: the path opened once
+        // and closed once (the bounce breaks happen with the armature picked up).
+        let mut events = vec![
+            event(1.05, EventKind::DropOut),
+            event(1.053, EventKind::NormallyOpenBroken),
+            event(1.9, EventKind::PickUp),
+        ];
+        for k in 0..4 {
+            let t = 1.906 + 0.0005 * f64::from(k);
+            events.push(event(t, EventKind::NormallyOpenMade));
+            if k < 3 {
+                events.push(event(t + 0.00025, EventKind::NormallyOpenBroken));
+            }
+        }
+        let m = measure(&events, &window());
+        assert_eq!((m.load_path_openings, m.load_path_closings), (1, 1));
+        assert!(!m.chatter);
+        assert!((m.bounce_ms.unwrap() - 1.5).abs() < 1e-9);
     }
 
     #[test]

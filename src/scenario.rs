@@ -8,7 +8,7 @@ use crate::circuit::{Circuit, PartSpec};
 use crate::engine::{
     DiscreteEvent, Network, Observer, RunStats, Settings, SimError, SimState, Simulator, Start,
 };
-use crate::measure::{measure, minimum_after, toggles, Measurements, Window};
+use crate::measure::{load_path_openings, measure, minimum_after, toggles, Measurements, Window};
 use crate::probe::{Probe, Trace};
 use crate::profile::{Envelope, Profile};
 use crate::waveform::Waveform;
@@ -650,7 +650,6 @@ impl Settled {
                 )
             })
             .collect();
-        let toggle_counts: Vec<usize> = comparator_toggles.iter().map(|(_, n)| *n).collect();
         let window = Window {
             onset_s,
             event_end_s,
@@ -659,7 +658,7 @@ impl Settled {
             relay_part: relay.unwrap_or(usize::MAX),
             closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
         };
-        let measurements = measure(&trace.events, &window, &toggle_counts);
+        let measurements = measure(&trace.events, &window);
         let min_rail_v = rail.and_then(|node| {
             let column = trace.column(&Probe::Voltage { node })?;
             minimum_after(&trace.time, column, onset_s)
@@ -704,8 +703,12 @@ pub struct EventResponse {
     pub tripped: bool,
     /// From the event's detected start to the trip, milliseconds.
     pub trip_latency_ms: Option<f64>,
-    /// From the event's detected end to the reconnection, milliseconds.
+    /// From the event's detected end to the last reconnection, milliseconds.
     pub restore_latency_ms: Option<f64>,
+    /// Openings of the load path assigned to the event (bounce excluded).
+    pub openings: usize,
+    /// The load path opened or closed more than once for the event.
+    pub chatter: bool,
     /// The trip, in recording time.
     pub trip: Option<ReplayTrip>,
 }
@@ -890,60 +893,46 @@ impl Settled {
 
         // Trips in recording time.
         let to_rec = |t: f64| t - shift;
-        let mut trips: Vec<ReplayTrip> = Vec::new();
-        // A trip is the load path opening after the armature dropped out; an opening while
-        // the armature is picked up is contact bounce.
-        let mut closed = self.load_connected();
-        let mut operated = self.pre_event_relay.is_some_and(|r| r.operated);
-        for e in &watch.events {
-            use crate::engine::EventKind as K;
-            match e.kind {
-                K::PickUp => operated = true,
-                K::DropOut => operated = false,
-                K::NormallyOpenBroken if closed && !operated => {
-                    closed = false;
-                    trips.push(ReplayTrip {
-                        time_s: to_rec(e.time),
-                        reconnected_s: None,
-                    });
-                }
-                K::NormallyOpenBroken => {
-                    closed = false;
-                    if let Some(t) = trips.last_mut() {
-                        t.reconnected_s = None;
-                    }
-                }
-                K::NormallyOpenMade => {
-                    closed = true;
-                    if let Some(t) = trips.last_mut() {
-                        t.reconnected_s = Some(to_rec(e.time));
-                    }
-                }
-                _ => {}
-            }
-        }
+        let relay_events: Vec<&DiscreteEvent> = watch.events.iter().collect();
+        let trips: Vec<ReplayTrip> = load_path_openings(&relay_events, self.load_connected())
+            .into_iter()
+            .map(|o| ReplayTrip {
+                time_s: to_rec(o.opened_s),
+                reconnected_s: o.reconnected_s.map(to_rec),
+            })
+            .collect();
+        // Every trip from a cycle before an event's start to a second after its end belongs
+        // to that event; more than one opening or reconnection is chatter.
         let mut assigned = vec![false; trips.len()];
         let mut responses = Vec::new();
         for event in &detection.events {
             let end = event.start_s + event.duration_s;
-            let found = trips.iter().enumerate().find(|(i, t)| {
-                !assigned[*i] && t.time_s >= event.start_s - period && t.time_s <= end + 1.0
-            });
-            let (tripped, trip) = match found {
-                Some((i, t)) => {
-                    assigned[i] = true;
-                    (true, Some(t.clone()))
-                }
-                None => (false, None),
-            };
+            let mine: Vec<usize> = (0..trips.len())
+                .filter(|&i| {
+                    !assigned[i]
+                        && trips[i].time_s >= event.start_s - period
+                        && trips[i].time_s <= end + 1.0
+                })
+                .collect();
+            for &i in &mine {
+                assigned[i] = true;
+            }
+            let openings: Vec<crate::measure::Opening> = mine
+                .iter()
+                .map(|&i| crate::measure::Opening {
+                    opened_s: trips[i].time_s,
+                    reconnected_s: trips[i].reconnected_s,
+                })
+                .collect();
+            let trip = mine.first().map(|&i| trips[i].clone());
+            let reconnected = mine.last().and_then(|&i| trips[i].reconnected_s);
             responses.push(EventResponse {
                 event: event.clone(),
-                tripped,
+                tripped: trip.is_some(),
                 trip_latency_ms: trip.as_ref().map(|t| (t.time_s - event.start_s) * 1e3),
-                restore_latency_ms: trip
-                    .as_ref()
-                    .and_then(|t| t.reconnected_s)
-                    .map(|r| (r - end) * 1e3),
+                restore_latency_ms: reconnected.map(|r| (r - end) * 1e3),
+                openings: openings.len(),
+                chatter: crate::measure::chatters(&openings, 1),
                 trip,
             });
         }

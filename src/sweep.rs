@@ -24,7 +24,7 @@ pub enum Outcome {
     RidesThrough,
     /// The load was disconnected.
     Trips,
-    /// The relay or a comparator chattered (see `docs/measurements.md`).
+    /// The load path opened or closed more than once (see `docs/measurements.md`).
     Chatters,
 }
 
@@ -43,6 +43,8 @@ pub struct Point {
     pub trip_latency_ms: Option<f64>,
     /// Restore latency, milliseconds.
     pub restore_latency_ms: Option<f64>,
+    /// The most output toggles of any one comparator (reported apart from chatter).
+    pub comparator_toggles: usize,
     /// Why the point failed, if it did.
     pub failure: Option<String>,
 }
@@ -93,6 +95,12 @@ pub fn run_point(
                 outcome,
                 trip_latency_ms: m.trip_latency_ms,
                 restore_latency_ms: m.restore_latency_ms,
+                comparator_toggles: run
+                    .comparator_toggles
+                    .iter()
+                    .map(|(_, n)| *n)
+                    .max()
+                    .unwrap_or(0),
                 failure: None,
             }
         }
@@ -103,6 +111,7 @@ pub fn run_point(
             outcome: Outcome::Failed,
             trip_latency_ms: None,
             restore_latency_ms: None,
+            comparator_toggles: 0,
             failure: Some(e.to_string()),
         },
     }
@@ -320,6 +329,7 @@ mod tests {
             outcome,
             trip_latency_ms: trip,
             restore_latency_ms: None,
+            comparator_toggles: 0,
             failure: None,
         };
         let c = cells(&[
@@ -335,7 +345,7 @@ mod tests {
 
 /// Header of a points journal (`points.csv`).
 pub const POINTS_HEADER: &str =
-    "level_pct,duration_s,phase_deg,outcome,trip_latency_ms,restore_latency_ms,failure";
+    "level_pct,duration_s,phase_deg,outcome,trip_latency_ms,restore_latency_ms,comparator_toggles,failure";
 
 /// Header of a boundary journal (`boundary.csv`).
 pub const BOUNDARY_HEADER: &str = "side,duration_s,level_pct,resolution_pct";
@@ -375,13 +385,14 @@ fn parse_optional(text: &str) -> Option<Option<f64>> {
 /// so a resumed sweep recognises its points exactly.
 pub fn point_line(p: &Point) -> String {
     format!(
-        "{},{},{},{},{},{},{}",
+        "{},{},{},{},{},{},{},{}",
         p.level_pct,
         p.duration_s,
         p.phase_deg,
         outcome_name(p.outcome),
         optional(p.trip_latency_ms),
         optional(p.restore_latency_ms),
+        p.comparator_toggles,
         p.failure
             .as_deref()
             .unwrap_or("")
@@ -391,8 +402,8 @@ pub fn point_line(p: &Point) -> String {
 
 /// Reads a journal line; `None` for a malformed (for example half-written) line.
 pub fn parse_point_line(line: &str) -> Option<Point> {
-    let f: Vec<&str> = line.splitn(7, ',').collect();
-    if f.len() != 7 {
+    let f: Vec<&str> = line.splitn(8, ',').collect();
+    if f.len() != 8 {
         return None;
     }
     Some(Point {
@@ -402,7 +413,8 @@ pub fn parse_point_line(line: &str) -> Option<Point> {
         outcome: outcome_from(f[3])?,
         trip_latency_ms: parse_optional(f[4])?,
         restore_latency_ms: parse_optional(f[5])?,
-        failure: (!f[6].is_empty()).then(|| f[6].to_string()),
+        comparator_toggles: f[6].parse().ok()?,
+        failure: (!f[7].is_empty()).then(|| f[7].to_string()),
     })
 }
 
@@ -487,6 +499,7 @@ mod journal_tests {
             outcome: Outcome::Trips,
             trip_latency_ms: Some(66.02),
             restore_latency_ms: None,
+            comparator_toggles: 4,
             failure: None,
         };
         assert_eq!(parse_point_line(&point_line(&p)), Some(p.clone()));

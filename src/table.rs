@@ -259,7 +259,8 @@ pub struct Row {
     pub outcome: String,
     /// Phases at which it tripped, degrees.
     pub tripped_at_deg: Vec<f64>,
-    /// Phases at which the relay chattered, degrees.
+    /// Phases at which the load path chattered (opened or closed more than once per
+    /// disturbance), degrees.
     pub chattered_at_deg: Vec<f64>,
     /// Onset to the load path opening, over the runs that tripped.
     pub trip_latency_ms: Option<Spread>,
@@ -335,7 +336,7 @@ fn row(test: &PlanTest, runs: &[RunOutcome]) -> Row {
         out
     };
     let tripped_at = phases_where(&|r| r.measurements.tripped);
-    let chattered_at = phases_where(&|r| r.measurements.relay_chatter);
+    let chattered_at = phases_where(&|r| r.measurements.chatter);
     let tripped_runs = runs.iter().filter(|r| r.measurements.tripped).count();
     let outcome = if !chattered_at.is_empty() {
         "chatters".to_string()

@@ -83,8 +83,10 @@ pub struct Ramp {
     pub reconnect_v: Option<f64>,
     /// Armature pick-ups and drop-outs during the ramp and after it.
     pub relay_transitions: usize,
-    /// More armature transitions than one drop-out and one pick-up.
+    /// The load path opened or closed more than once (the chatter of every report).
     pub relay_chatters: bool,
+    /// Openings of the load path during the ramp and after it, bounce excluded.
+    pub load_path_openings: usize,
     /// Toggles of each comparator's output while its logic supply was up.
     pub comparator_toggles: Vec<(String, usize)>,
 }
@@ -105,7 +107,10 @@ impl Ramp {
     pub fn verdict(&self) -> String {
         let toggles = self.most_toggles();
         if self.relay_chatters {
-            format!("relay chatters ({} armature moves)", self.relay_transitions)
+            format!(
+                "chatters (the load path opened {} times; {} armature moves)",
+                self.load_path_openings, self.relay_transitions
+            )
         } else if toggles > 2 {
             format!(
                 "one trip, one reset; a comparator toggled {toggles} times (a slower ramp may \
@@ -326,7 +331,8 @@ fn side(
             .restore_latency_ms
             .map(|r| level_at(run.envelope.end_s + r / 1e3)),
         relay_transitions: m.relay_transitions,
-        relay_chatters: m.relay_chatter,
+        relay_chatters: m.chatter,
+        load_path_openings: m.load_path_openings,
         comparator_toggles: run.comparator_toggles.clone(),
     });
     Ok(result)
@@ -370,6 +376,7 @@ mod tests {
             reconnect_v: Some(201.0),
             relay_transitions: transitions,
             relay_chatters: transitions > 2,
+            load_path_openings: transitions / 2,
             comparator_toggles: vec![("cmp_a".into(), 1), ("cmp_b".into(), toggles)],
         }
     }
@@ -377,7 +384,10 @@ mod tests {
     #[test]
     fn the_verdict_names_a_toggling_comparator_the_relay_did_not_follow() {
         assert_eq!(ramp(2, 1).verdict(), "one trip, one reset");
-        assert_eq!(ramp(6, 900).verdict(), "relay chatters (6 armature moves)");
+        assert_eq!(
+            ramp(6, 900).verdict(),
+            "chatters (the load path opened 3 times; 6 armature moves)"
+        );
         let quiet_relay = ramp(2, 406).verdict();
         assert!(quiet_relay.starts_with("one trip, one reset; a comparator toggled 406 times"));
         assert_eq!(ramp(2, 406).most_toggles(), 406);
