@@ -592,13 +592,30 @@ impl Reader<'_> {
         })
     }
 
-    /// Reads a number, or a string with SI prefix and unit.
+    /// Reads a number, or a string with SI prefix and unit; a flag from a TOML boolean.
     fn number(
         &mut self,
         value: &Spanned<DeValue<'_>>,
         path: &str,
         quantity: Quantity,
     ) -> Option<f64> {
+        if quantity == Quantity::Flag {
+            // A yes/no setting is a TOML boolean and nothing else.
+            return match value.get_ref() {
+                DeValue::Boolean(b) => Some(f64::from(u8::from(*b))),
+                other => {
+                    self.problem(
+                        value.span(),
+                        path,
+                        format!(
+                            "expected true or false, found {}",
+                            with_article(other.type_str())
+                        ),
+                    );
+                    None
+                }
+            };
+        }
         if let Some(v) = self.toleranced(value, path, quantity) {
             return v;
         }
@@ -617,8 +634,8 @@ impl Reader<'_> {
                     value.span(),
                     path,
                     format!(
-                        "expected a number or a value like \"4.7u\", found a {}",
-                        other.type_str()
+                        "expected a number or a value like \"4.7u\", found {}",
+                        with_article(other.type_str())
                     ),
                 );
                 return None;
@@ -1650,4 +1667,14 @@ impl UnionFind {
             }
         }
     }
+}
+
+/// "a boolean", "an integer": a TOML type name with its article.
+fn with_article(name: &str) -> String {
+    let article = if name.starts_with(['a', 'e', 'i', 'o', 'u']) {
+        "an"
+    } else {
+        "a"
+    };
+    format!("{article} {name}")
 }

@@ -359,7 +359,8 @@ struct RunArgs {
     /// mains cycles, or 100 ms without a sine source).
     #[arg(long)]
     duration: Option<String>,
-    /// Largest time step, e.g. 50us (default 100us).
+    /// Largest time step, e.g. 50us (default 500us; the truncation-error control takes
+    /// shorter steps wherever the waveforms need them).
     #[arg(long)]
     max_step: Option<String>,
     /// How the run begins (default: from rest, as when the unit is plugged in).

@@ -114,11 +114,8 @@ resistance = "10"
 
 #[test]
 fn series_rlc_rings_at_the_damped_frequency_and_decays() {
-    // A tenth of the default truncation-error tolerance, for a 0.2% period check (the
-    // default keeps the period within 0.5%, see the LC test).
-    let mut tight = settings();
-    tight.lte_reltol /= 10.0;
-    let run = simulate(RLC, Start::Rest, 1e-3, tight, &["top"]);
+    // Default settings: a user expects about 0.1% on a linear circuit.
+    let run = simulate(RLC, Start::Rest, 1e-3, settings(), &["top"]);
     // Series RLC, underdamped (Hayt, Kemmerly and Durbin): alpha = R/2L,
     // w0 = 1/sqrt(LC), wd = sqrt(w0^2 - alpha^2),
     // v(t) = V0 exp(-alpha t)(cos wd t + (alpha/wd) sin wd t).
@@ -136,18 +133,12 @@ fn series_rlc_rings_at_the_damped_frequency_and_decays() {
     // Ringing frequency from the downward zero crossings.
     let times = &run.trace.time;
     let v = run.column("top");
-    let mut crossings = Vec::new();
-    for k in 1..v.len() {
-        if v[k - 1] > 0.0 && v[k] <= 0.0 {
-            let w = v[k - 1] / (v[k - 1] - v[k]);
-            crossings.push(times[k - 1] + w * (times[k] - times[k - 1]));
-        }
-    }
+    let crossings = downward_crossings(times, v);
     assert!(crossings.len() >= 4);
     let period = (crossings[3] - crossings[0]) / 3.0;
     let expected_period = 2.0 * std::f64::consts::PI / wd;
     assert!(
-        (period / expected_period - 1.0).abs() < 2e-3,
+        (period / expected_period - 1.0).abs() < 1e-3,
         "period {period} s, expected {expected_period} s"
     );
 
@@ -170,21 +161,39 @@ fn series_rlc_rings_at_the_damped_frequency_and_decays() {
     );
 }
 
+/// The downward zero crossings of `v`, each on the parabola through the samples around it
+/// (a chord would cut the curve of a damped ring early or late by up to a part in 1e4).
+fn downward_crossings(times: &[f64], v: &[f64]) -> Vec<f64> {
+    let mut crossings = Vec::new();
+    for k in 2..v.len() {
+        if v[k - 1] > 0.0 && v[k] <= 0.0 {
+            // Newton on the Lagrange parabola through samples k-2, k-1, k, from the chord.
+            let (t0, t1, t2) = (times[k - 2], times[k - 1], times[k]);
+            let (v0, v1, v2) = (v[k - 2], v[k - 1], v[k]);
+            let p = |t: f64| {
+                v0 * (t - t1) * (t - t2) / ((t0 - t1) * (t0 - t2))
+                    + v1 * (t - t0) * (t - t2) / ((t1 - t0) * (t1 - t2))
+                    + v2 * (t - t0) * (t - t1) / ((t2 - t0) * (t2 - t1))
+            };
+            let mut t = t1 + v1 / (v1 - v2) * (t2 - t1);
+            for _ in 0..20 {
+                let h = 1e-6 * (t2 - t1);
+                let slope = (p(t + h) - p(t - h)) / (2.0 * h);
+                t -= p(t) / slope;
+            }
+            crossings.push(t);
+        }
+    }
+    crossings
+}
+
 /// Ringing frequency of the LC tank (1 mohm of damping) at truncation-error tolerance `reltol`.
 fn lc_frequency(reltol: f64) -> f64 {
     let text = RLC.replace("resistance = \"10\"", "resistance = \"1m\"");
     let mut s = settings();
     s.lte_reltol = reltol;
     let run = simulate(&text, Start::Rest, 2e-3, s, &["top"]);
-    let times = &run.trace.time;
-    let v = run.column("top");
-    let mut crossings = Vec::new();
-    for k in 1..v.len() {
-        if v[k - 1] > 0.0 && v[k] <= 0.0 {
-            let w = v[k - 1] / (v[k - 1] - v[k]);
-            crossings.push(times[k - 1] + w * (times[k] - times[k - 1]));
-        }
-    }
+    let crossings = downward_crossings(&run.trace.time, run.column("top"));
     let n = crossings.len() - 1;
     n as f64 / (crossings[n] - crossings[0])
 }
@@ -193,15 +202,15 @@ fn lc_frequency(reltol: f64) -> f64 {
 fn lc_tank_rings_at_its_resonant_frequency() {
     // LC 1 mH, 1 uF: f0 = 1/(2 pi sqrt(LC)) = 5032.921 Hz (check-values, derived).
     // The trapezoidal rule shortens the period by about (w h)^2 / 12; the step control
-    // keeps that within 0.5% at the default tolerance and 0.1% at a tenth of it.
+    // keeps that within 0.1% at the default tolerance, and closer at a tenth of it.
     let f0 = 5032.921;
     let default = lc_frequency(settings().lte_reltol);
     assert!(
-        (default / f0 - 1.0).abs() < 5e-3,
+        (default / f0 - 1.0).abs() < 1e-3,
         "default: f0 = {default} Hz"
     );
     let tight = lc_frequency(settings().lte_reltol / 10.0);
-    assert!((tight / f0 - 1.0).abs() < 1e-3, "tight: f0 = {tight} Hz");
+    assert!((tight / f0 - 1.0).abs() < 3e-4, "tight: f0 = {tight} Hz");
     assert!((tight / f0 - 1.0).abs() < (default / f0 - 1.0).abs());
 }
 
@@ -252,4 +261,69 @@ capacitance = "1u"
     let (r1, r2) = (e1 / e2, e2 / e3);
     assert!((3.5..4.5).contains(&r1), "ratio {r1} ({e1} / {e2})");
     assert!((3.5..4.5).contains(&r2), "ratio {r2} ({e2} / {e3})");
+}
+
+#[test]
+fn an_unloaded_transformer_draws_its_magnetizing_current_at_default_settings() {
+    // 230 V, 50 Hz on a primary of 8 H and 40 ohm with the secondary open (1 Mohm, whose
+    // reflection through the 230:15 ratio is about 2e8 ohm, negligible): in the steady
+    // state the primary current is the magnetizing current, of peak
+    // Vpk / |R + j w L| (phasor analysis, Hayt, Kemmerly and Durbin). The switch-on offset
+    // decays with L/R = 0.2 s; after 2.4 s it is under 1e-5 of the peak. Default settings,
+    // to 0.1%.
+    let text = r#"
+[part.mains]
+kind = "voltage-source"
+pins = ["line", "gnd"]
+sine = { rms = "230V", frequency = "50Hz" }
+[part.xfmr]
+kind = "transformer"
+pins = { primary_a = "line", primary_b = "gnd", secondary_a = "sec_a", secondary_b = "gnd" }
+primary_inductance = "8H"
+primary_resistance = "40"
+secondary_inductance = "34.0mH"
+secondary_resistance = "1.2"
+coupling = 0.998
+[part.r_open]
+kind = "resistor"
+pins = ["sec_a", "gnd"]
+resistance = "1M"
+"#;
+    let run = simulate(text, Start::Rest, 2.44, settings(), &["current:mains"]);
+    // The amplitude of the last cycle by a least-squares fit of a sin + b cos + c at the
+    // step points (the largest sample alone would fall short of the crest between steps).
+    let w = 2.0 * std::f64::consts::PI * 50.0;
+    let from = run.trace.time.partition_point(|&t| t < 2.42);
+    let (times, current) = (
+        &run.trace.time[from..],
+        &run.column("current:mains")[from..],
+    );
+    let mut normal = [[0.0f64; 4]; 3];
+    for (t, i) in times.iter().zip(current) {
+        let basis = [(w * t).sin(), (w * t).cos(), 1.0];
+        for r in 0..3 {
+            for c in 0..3 {
+                normal[r][c] += basis[r] * basis[c];
+            }
+            normal[r][3] += basis[r] * i;
+        }
+    }
+    // Gauss-Jordan on the 3 x 3 normal equations.
+    for p in 0..3 {
+        for r in 0..3 {
+            if r != p {
+                let f = normal[r][p] / normal[p][p];
+                for c in 0..4 {
+                    normal[r][c] -= f * normal[p][c];
+                }
+            }
+        }
+    }
+    let (a, b) = (normal[0][3] / normal[0][0], normal[1][3] / normal[1][1]);
+    let peak = a.hypot(b);
+    let expected = 230.0 * 2f64.sqrt() / (40.0f64.powi(2) + (w * 8.0).powi(2)).sqrt();
+    assert!(
+        (peak / expected - 1.0).abs() < 1e-3,
+        "magnetizing current peak {peak} A, expected {expected} A"
+    );
 }

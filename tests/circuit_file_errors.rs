@@ -201,3 +201,37 @@ fn source_needs_exactly_one_waveform() {
     let text = GOOD_TAIL.replace("dc = \"5V\"", "sine = { rms = 1 }");
     check(&text, 5, "part.supply.sine", "missing `frequency`");
 }
+
+#[test]
+fn a_flag_is_a_toml_boolean() {
+    // docs/circuit-format.md: `body_diode` is a TOML boolean (`body_diode = false`).
+    let mosfet = |value: &str| {
+        format!(
+            "[part.m1]\nkind = \"nmos\"\npins = {{ drain = \"a\", gate = \"a\", source = \"gnd\" }}\n\
+             threshold_voltage = \"2V\"\ntransconductance = \"0.5\"\nbody_diode = {value}\n{GOOD_TAIL}"
+        )
+    };
+    let circuit = common::circuit(&mosfet("false"));
+    let m1 = circuit.part("m1").unwrap();
+    match &circuit.parts[m1].spec {
+        sagtrip::circuit::PartSpec::Mosfet(m) => assert!(m.body_diode.is_none()),
+        other => panic!("{other:?}"),
+    }
+    let circuit = common::circuit(&mosfet("true"));
+    match &circuit.parts[m1].spec {
+        sagtrip::circuit::PartSpec::Mosfet(m) => assert!(m.body_diode.is_some()),
+        other => panic!("{other:?}"),
+    }
+    check(
+        &mosfet("1"),
+        6,
+        "part.m1.body_diode",
+        "expected true or false, found an integer",
+    );
+    check(
+        &mosfet("\"no\""),
+        6,
+        "part.m1.body_diode",
+        "expected true or false",
+    );
+}

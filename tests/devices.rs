@@ -317,16 +317,20 @@ resistance = "10k"
 
 /// The input voltage at each output transition of a comparator driven by a slow sine.
 fn switching_levels(text: &str) -> (Vec<f64>, Vec<f64>) {
+    switching_levels_over(text, 0.2, 5.0)
+}
+
+/// As [`switching_levels`], over `t_end` seconds, with the output's middle at `mid` volts.
+fn switching_levels_over(text: &str, t_end: f64, mid: f64) -> (Vec<f64>, Vec<f64>) {
     let mut s = settings();
     s.max_step_s = 100e-6;
-    let run = simulate(text, Start::Rest, 0.2, s, &["in", "out"]);
+    let run = simulate(text, Start::Rest, t_end, s, &["in", "out"]);
     let (times, vin, out) = (&run.trace.time, run.column("in"), run.column("out"));
     let (mut rising_out, mut falling_out) = (Vec::new(), Vec::new());
     for k in 1..times.len() {
         if times[k] < 0.01 {
             continue;
         }
-        let mid = 5.0;
         if out[k - 1] < mid && out[k] >= mid {
             rising_out.push(vin[k]);
         } else if out[k - 1] >= mid && out[k] < mid {
@@ -418,6 +422,44 @@ input_offset = "0.1V"
     }
     for v in &falling_out {
         assert!((v - 4.9).abs() < 0.01, "fall at {v}");
+    }
+}
+
+#[test]
+fn comparator_built_in_hysteresis_is_exact_at_a_low_supply() {
+    // On a 5 V supply (output span 3.45 V) a 1 V band around a 2.5 V reference: the output
+    // rises at 3.0 V and falls at 2.0 V exactly, as on 12 V (model definition,
+    // docs/models.md: offset +/- hysteresis / 2 at any supply). The 1 Hz input moves under
+    // 0.7 mV per 100 us step.
+    let text = r#"
+[part.supply]
+kind = "voltage-source"
+pins = ["vcc", "gnd"]
+dc = "5V"
+[part.reference]
+kind = "voltage-source"
+pins = ["ref", "gnd"]
+dc = "2.5V"
+[part.signal]
+kind = "voltage-source"
+pins = ["in", "gnd"]
+sine = { amplitude = "1.2V", offset = "2.5V", frequency = "1Hz" }
+[part.r_load]
+kind = "resistor"
+pins = ["out", "gnd"]
+resistance = "100k"
+[part.u1]
+kind = "comparator"
+pins = { plus = "in", minus = "ref", output = "out", supply_plus = "vcc", supply_minus = "gnd" }
+hysteresis = "1V"
+"#;
+    let (rising_out, falling_out) = switching_levels_over(text, 2.0, 1.75);
+    assert!(!rising_out.is_empty() && !falling_out.is_empty());
+    for v in &rising_out {
+        assert!((v - 3.0).abs() < 0.002, "rise at {v}");
+    }
+    for v in &falling_out {
+        assert!((v - 2.0).abs() < 0.002, "fall at {v}");
     }
 }
 
@@ -561,4 +603,55 @@ resistance = "10k"
         (width / (3f64.ln() * 100e3 * 100e-9) - 1.0).abs() < 0.01,
         "{width}"
     );
+}
+
+#[test]
+fn a_slow_comparator_follows_its_first_order_lag_at_default_settings() {
+    // A comparator with response_time = 1 ms, its input stepped across the threshold at
+    // 1 ms: the lag (docs/models.md) makes the output rise as a first-order response,
+    // reaching half its swing tau ln 2 after the step and 1 - 1/e after tau (RC step
+    // response, Hayt, Kemmerly and Durbin). Checked at default settings to 0.1%.
+    let text = r#"
+[part.supply]
+kind = "voltage-source"
+pins = ["vcc", "gnd"]
+dc = "12V"
+[part.reference]
+kind = "voltage-source"
+pins = ["ref", "gnd"]
+dc = "5V"
+[part.signal]
+kind = "voltage-source"
+pins = ["in", "gnd"]
+step = { before = "4V", after = "6V", at = "1ms" }
+[part.r_load]
+kind = "resistor"
+pins = ["out", "gnd"]
+resistance = "1G"
+[part.u1]
+kind = "comparator"
+pins = { plus = "in", minus = "ref", output = "out", supply_plus = "vcc", supply_minus = "gnd" }
+response_time = "1ms"
+"#;
+    let run = simulate(text, Start::OperatingPoint, 8e-3, settings(), &["out"]);
+    let (low, high) = (0.05, 10.5);
+    for (fraction, after) in [
+        (0.5, 1e-3 * 2f64.ln()),
+        (1.0 - (-1.0f64).exp(), 1e-3),
+        (0.9, 1e-3 * 10f64.ln()),
+    ] {
+        let level = low + fraction * (high - low);
+        let out = run.column("out");
+        let k = out.iter().position(|&v| v >= level).unwrap();
+        let (t0, t1) = (run.trace.time[k - 1], run.trace.time[k]);
+        let (v0, v1) = (out[k - 1], out[k]);
+        // The crossing between the two samples, on the exponential through them.
+        let gap = |v: f64| (high - v).ln();
+        let t = t0 + (t1 - t0) * (gap(v0) - gap(level)) / (gap(v0) - gap(v1));
+        let measured = t - 1e-3;
+        assert!(
+            (measured / after - 1.0).abs() < 1e-3,
+            "{fraction}: {measured} s after the step, expected {after} s"
+        );
+    }
 }

@@ -6,7 +6,7 @@
 //! ```text
 //! v_low  = v(supply_minus) + low_headroom
 //! span   = smooth_max(v(supply_plus) - high_headroom - v_low, 0)
-//! s      = 2 (x - v_low) / (span + 0.1 V) - 1          (present output state, -1 .. 1)
+//! s      = clamp(2 (x - v_low) / span - 1, -1, 1)       (present output state, -1 .. 1)
 //! thr    = input_offset - (hysteresis / 2) s
 //! u      = 2 gain (v(plus) - v(minus) - thr) / (span + 0.1 V)
 //! target = v_low + span (1 + tanh u) / 2
@@ -17,7 +17,9 @@
 //! The output pin is driven from `x` through `output_resistance`; the output current and the
 //! comparator's own supply current are not drawn from the supply pins (a simplification:
 //! both are small beside the circuits it drives). With `hysteresis` > 0 the threshold moves
-//! by half the band against the present output, a Schmitt trigger.
+//! by half the band against the present output, a Schmitt trigger: with the output at a
+//! rail `s` is exactly -1 or +1 at any supply, so the output rises at
+//! `input_offset + hysteresis/2` and falls at `input_offset - hysteresis/2`.
 
 use super::Mna;
 use crate::circuit::ComparatorParams;
@@ -47,7 +49,7 @@ impl Comparator {
         let d = sp - p.high_headroom - v_low;
         let span = 0.5 * (d + (d * d + SPAN_SOFTNESS * SPAN_SOFTNESS).sqrt());
         let norm = span + SPAN_FLOOR;
-        let s = 2.0 * (x - v_low) / norm - 1.0;
+        let s = (2.0 * (x - v_low) / span - 1.0).clamp(-1.0, 1.0);
         let threshold = p.input_offset - 0.5 * p.hysteresis * s;
         let u = 2.0 * p.gain * (vp - vm - threshold) / norm;
         (v_low + span * 0.5 * (1.0 + u.tanh()), u)
@@ -85,7 +87,10 @@ impl Comparator {
         // d span / d sp (and minus d span / d sn).
         let sigma = 0.5 * (1.0 + d / root);
         let norm = span + SPAN_FLOOR;
-        let s = 2.0 * (x - v_low) / norm - 1.0;
+        let s_raw = 2.0 * (x - v_low) / span - 1.0;
+        let s = s_raw.clamp(-1.0, 1.0);
+        // Beyond the rails (a collapsing supply) the state is clamped: no derivative.
+        let s_free = f64::from(u8::from(s_raw.abs() < 1.0));
         let e = vp - vm - p.input_offset + 0.5 * p.hysteresis * s;
         let u = 2.0 * p.gain * e / norm;
         let t = u.tanh();
@@ -96,7 +101,8 @@ impl Comparator {
         let mut grad = [0.0; 5];
         for k in 0..5 {
             let dx = if k == 4 { 1.0 } else { 0.0 };
-            let ds = 2.0 * (dx - dvlow[k]) / norm - 2.0 * (x - v_low) * dnorm[k] / (norm * norm);
+            let ds = s_free
+                * (2.0 * (dx - dvlow[k]) / span - 2.0 * (x - v_low) * dnorm[k] / (span * span));
             let de = [1.0, -1.0, 0.0, 0.0, 0.0][k] + 0.5 * p.hysteresis * ds;
             let du = 2.0 * p.gain * (de / norm - e * dnorm[k] / (norm * norm));
             grad[k] = dvlow[k] + dnorm[k] * 0.5 * (1.0 + t) + span * 0.5 * (1.0 - t * t) * du;

@@ -241,7 +241,7 @@ impl Network {
                             capacitance: c.response_time,
                             initial_voltage: 0.0,
                             hist: history_len,
-                            checked: false,
+                            checked: true,
                         },
                         0.0,
                     );
