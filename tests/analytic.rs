@@ -313,8 +313,9 @@ resistance = "1M"
         for r in 0..3 {
             if r != p {
                 let f = normal[r][p] / normal[p][p];
-                for c in 0..4 {
-                    normal[r][c] -= f * normal[p][c];
+                let pivot_row = normal[p];
+                for (entry, pivot) in normal[r].iter_mut().zip(pivot_row) {
+                    *entry -= f * pivot;
                 }
             }
         }
