@@ -20,6 +20,19 @@ use std::collections::VecDeque;
 use num_complex::Complex64;
 use serde::Serialize;
 
+/// The resolution at which Urms(1/2) is reported and judged, percent of the declared
+/// voltage: every threshold test and every class is taken on the value as reported (a dip
+/// reported at 40.00% is EN 50160 row C, never D because its unrounded value was 39.9999%).
+pub const LEVEL_RESOLUTION_PCT: f64 = 0.01;
+
+/// `percent` rounded to [`LEVEL_RESOLUTION_PCT`].
+pub fn reported_level(percent: f64) -> f64 {
+    // Dividing the whole number of steps (rather than multiplying by 0.01) gives the double
+    // nearest the decimal value, so 40.00 compares equal to the literal 40.0.
+    let per_pct = LEVEL_RESOLUTION_PCT.recip().round();
+    (percent * per_pct).round() / per_pct
+}
+
 /// Detection thresholds, percent of the declared voltage.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Thresholds {
@@ -235,6 +248,13 @@ pub fn en_50160(kind: EventKind, duration_s: f64, level_pct: f64) -> String {
     }
 }
 
+/// The first sample at or after the fractional sample position `x`. A crossing that falls
+/// on a sample, give or take rounding, is that sample: otherwise a window between two such
+/// crossings could hold one sample too few or too many (0.25% off at 200 samples a cycle).
+fn first_sample_at(x: f64) -> u64 {
+    (x - 1e-6).ceil().max(0.0) as u64
+}
+
 /// An event being followed.
 struct Open {
     kind: EventKind,
@@ -413,7 +433,7 @@ impl Detector {
     }
 
     fn half_cycle_value(&mut self, start: f64, end: f64) {
-        let (a, b) = (start.ceil() as u64, end.ceil() as u64);
+        let (a, b) = (first_sample_at(start), first_sample_at(end));
         if b <= a || a < self.first_index {
             return;
         }
@@ -422,12 +442,12 @@ impl Detector {
         self.result
             .half_cycles
             .push(HalfCycle { time_s, rms_v: rms });
-        self.follow(time_s, 100.0 * rms / self.declared_v);
+        self.follow(time_s, reported_level(100.0 * rms / self.declared_v));
     }
 
     /// One whole cycle between rising crossings at sample positions `a` and `b`.
     fn cycle(&mut self, a: f64, b: f64) {
-        let (i0, i1) = (a.ceil() as u64, b.ceil() as u64);
+        let (i0, i1) = (first_sample_at(a), first_sample_at(b));
         if i1 <= i0 || i0 < self.first_index {
             return;
         }
@@ -538,6 +558,66 @@ impl Detector {
         }
         self.result
     }
+}
+
+impl Detection {
+    /// The supply frequency over each 10 s interval of the recording (IEC 61000-4-30: the
+    /// whole cycles counted in the interval divided by their total duration), hertz. Cycles
+    /// that overlap an event, or lie within one cycle of it, do not count: an event
+    /// distorts the zero crossings that time them. A recording shorter than 10 s is one
+    /// interval; an interval with no undisturbed cycle gives no value.
+    pub fn frequency_intervals(&self) -> Vec<f64> {
+        const INTERVAL_S: f64 = 10.0;
+        let mut intervals: Vec<(f64, f64)> = Vec::new();
+        for c in &self.cycles {
+            let period = 1.0 / c.frequency_hz;
+            let (from, to) = (c.start_s - period, c.start_s + 2.0 * period);
+            let disturbed = self.events.iter().any(|e| {
+                let end = e.start_s + e.duration_s;
+                // An event's time stamp lies up to one window after its onset.
+                from < end && to > e.start_s - period
+            });
+            if disturbed {
+                continue;
+            }
+            let k = (c.start_s / INTERVAL_S).floor() as usize;
+            if intervals.len() <= k {
+                intervals.resize(k + 1, (0.0, 0.0));
+            }
+            intervals[k].0 += 1.0;
+            intervals[k].1 += period;
+        }
+        intervals
+            .into_iter()
+            .filter(|(n, _)| *n > 0.0)
+            .map(|(n, time)| n / time)
+            .collect()
+    }
+}
+
+/// The frequency of whole cycles (rising zero crossing to rising zero crossing, located
+/// between samples) in `samples` taken at `rate` per second, hertz; `None` with fewer
+/// than two rising crossings.
+pub fn measured_frequency(samples: &[f64], rate: f64) -> Option<f64> {
+    let rising: Vec<f64> = (1..samples.len())
+        .filter(|&i| samples[i - 1] < 0.0 && samples[i] >= 0.0)
+        .map(|i| (i - 1) as f64 + samples[i - 1] / (samples[i - 1] - samples[i]))
+        .collect();
+    match rising.as_slice() {
+        [first, .., last] => Some(rate * (rising.len() - 1) as f64 / (last - first)),
+        _ => None,
+    }
+}
+
+/// The standard nominal voltage (IEC 60038 and common national values: 100, 110, 115,
+/// 120, 127, 200, 220, 230, 240, 277 V) nearest a measured RMS voltage, volts.
+pub fn nearest_standard_voltage(rms_v: f64) -> f64 {
+    [
+        100.0, 110.0, 115.0, 120.0, 127.0, 200.0, 220.0, 230.0, 240.0, 277.0,
+    ]
+    .into_iter()
+    .min_by(|a: &f64, b: &f64| (a - rms_v).abs().total_cmp(&(b - rms_v).abs()))
+    .unwrap_or(230.0)
 }
 
 /// Detects events in a whole signal held in memory (tests and small recordings).

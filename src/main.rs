@@ -199,9 +199,11 @@ struct RecordingInput {
 struct DetectArgs {
     #[command(flatten)]
     input: RecordingInput,
-    /// Declared supply, e.g. 230V/50Hz.
-    #[arg(long, default_value = "230V/50Hz")]
-    nominal: String,
+    /// Declared supply, e.g. 230V/50Hz (default: the --calibrate voltage, or the standard
+    /// voltage nearest the first cycles, at the measured frequency's 50 or 60 Hz). A
+    /// recording whose frequency differs from it by more than 5% is refused.
+    #[arg(long)]
+    nominal: Option<String>,
     /// Write the events to this CSV file.
     #[arg(long)]
     out: Option<PathBuf>,
@@ -1864,6 +1866,10 @@ fn whole_cycle_rms(samples: &[f64]) -> Option<f64> {
 /// An opened, scaled recording: its first samples read ahead for calibration.
 struct Scaled {
     lead: Vec<f64>,
+    /// The `--calibrate` voltage, if the scale was calibrated.
+    calibrated_to: Option<f64>,
+    /// The frequency of the first whole cycles, hertz.
+    lead_frequency_hz: Option<f64>,
     rest: sagtrip::recording::Samples,
     scale: f64,
     how: String,
@@ -1882,9 +1888,25 @@ impl Scaled {
     }
 }
 
+/// Refuses a recording whose first cycles' frequency differs from `expected_hz` by more
+/// than 5%.
+fn check_recording_frequency(
+    measured_hz: Option<f64>,
+    expected_hz: f64,
+    what: &str,
+) -> Result<(), String> {
+    match measured_hz {
+        Some(m) if (m / expected_hz - 1.0).abs() > 0.05 => Err(format!(
+            "the recording's first cycles run at {m:.2} Hz, more than 5% from {what} \
+             ({expected_hz} Hz)"
+        )),
+        _ => Ok(()),
+    }
+}
+
 /// Opens a recording and works out its scale (given, calibrated on the first whole cycles
 /// against `declared` volts, or 1 for a CSV column in volts).
-fn open_scaled(input: &RecordingInput, frequency: f64) -> Result<Scaled, String> {
+fn open_scaled(input: &RecordingInput) -> Result<Scaled, String> {
     use sagtrip::recording::{open, CsvColumns};
     let columns = CsvColumns {
         time: input.time_column.clone(),
@@ -1893,7 +1915,9 @@ fn open_scaled(input: &RecordingInput, frequency: f64) -> Result<Scaled, String>
     let mut samples = open(&input.recording, input.channel, &columns).map_err(|e| e.to_string())?;
     let rate = samples.sample_rate;
     let description = samples.description.clone();
-    let lead_count = (rate / frequency * 10.0).ceil() as usize + 2;
+    // Four cycles at 50 Hz (four whole ones at 60 Hz): enough to calibrate and to time the
+    // supply, short enough to end before an event that a recording's lead-in precedes.
+    let lead_count = (rate / 50.0 * 4.0).ceil() as usize + 2;
     let mut lead = Vec::with_capacity(lead_count);
     for s in samples.by_ref().take(lead_count) {
         lead.push(s.map_err(|e| e.to_string())?);
@@ -1931,7 +1955,13 @@ fn open_scaled(input: &RecordingInput, frequency: f64) -> Result<Scaled, String>
             )
         }
     };
+    let calibrated_to = match (&input.volts_per_full_scale, &input.calibrate) {
+        (None, Some(text)) => parse_value(text, Quantity::Voltage).ok(),
+        _ => None,
+    };
     Ok(Scaled {
+        lead_frequency_hz: sagtrip::detect::measured_frequency(&lead, rate),
+        calibrated_to,
         lead,
         rest: samples,
         scale,
@@ -1954,8 +1984,38 @@ fn thresholds_of(input: &RecordingInput) -> sagtrip::detect::Thresholds {
 fn detect_command(args: &DetectArgs) -> Result<String, String> {
     use sagtrip::detect::Detector;
     let mut out = String::new();
-    let (declared, frequency) = nominal_option(&args.nominal)?;
-    let scaled = open_scaled(&args.input, frequency)?;
+    let scaled = open_scaled(&args.input)?;
+    let measured_hz = scaled.lead_frequency_hz;
+    let (declared, frequency, declared_how) = match &args.nominal {
+        Some(text) => {
+            let (v, f) = nominal_option(text)?;
+            check_recording_frequency(measured_hz, f, "--nominal")?;
+            (v, f, "given")
+        }
+        None => {
+            let measured = measured_hz.ok_or(
+                "the recording's first cycles have no two rising zero crossings to measure its \
+                 frequency: give the declared supply with --nominal (e.g. 230V/50Hz)",
+            )?;
+            let f = if (measured - 50.0).abs() < (measured - 60.0).abs() {
+                50.0
+            } else {
+                60.0
+            };
+            check_recording_frequency(Some(measured), f, "the nearest standard frequency")?;
+            match scaled.calibrated_to {
+                Some(v) => (v, f, "from --calibrate and the measured frequency"),
+                None => {
+                    let rms = whole_cycle_rms(&scaled.lead).unwrap_or(0.0) * scaled.scale;
+                    (
+                        sagtrip::detect::nearest_standard_voltage(rms),
+                        f,
+                        "the standard voltage nearest the first cycles, and the measured frequency",
+                    )
+                }
+            }
+        }
+    };
     let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
     let thresholds = thresholds_of(&args.input);
     let mut detector = Detector::new(rate, declared, frequency, thresholds.clone());
@@ -2002,7 +2062,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
         })
         .map_err(|err| format!("cannot write {}: {err}", path.display()))?;
     }
-    let frequencies: Vec<f64> = d.cycles.iter().map(|c| c.frequency_hz).collect();
+    let frequencies = d.frequency_intervals();
     let (fmin, fmax) = frequencies
         .iter()
         .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &f| {
@@ -2016,6 +2076,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
             "scale": how,
             "declared_rms_v": declared,
             "frequency_hz": frequency,
+            "declared_from": declared_how,
             "duration_s": d.duration_s,
             "samples": d.samples,
             "measured_frequency_hz": { "mean": fmean, "min": fmin, "max": fmax },
@@ -2033,7 +2094,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
     say!(out, "scale: {how}");
     say!(
         out,
-        "declared {declared} V / {frequency} Hz; measured frequency {fmean:.3} Hz (cycles from {fmin:.3} to {fmax:.3} Hz)"
+        "declared {declared} V / {frequency} Hz ({declared_how}); measured frequency {fmean:.3} Hz (10 s intervals from {fmin:.3} to {fmax:.3} Hz, cycles near events left out)"
     );
     if d.events.is_empty() {
         say!(out, "\nno dips, swells or interruptions");
@@ -2082,7 +2143,12 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
     let started = Instant::now();
     let settled =
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
-    let scaled = open_scaled(&args.input, settled.frequency_hz)?;
+    let scaled = open_scaled(&args.input)?;
+    check_recording_frequency(
+        scaled.lead_frequency_hz,
+        settled.frequency_hz,
+        "the protector's supply",
+    )?;
     let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
     let probes = args.trace.as_ref().map(|_| {
         let mut p = vec![Probe::Voltage {

@@ -464,7 +464,10 @@ fn detect_reports_the_events_of_a_synthesised_recording() {
     let events = v["events"].as_array().unwrap();
     let kinds: Vec<&str> = events.iter().map(|e| e["kind"].as_str().unwrap()).collect();
     assert_eq!(kinds, ["dip", "swell", "interruption"]);
-    assert_eq!(events[0]["en_50160"], "D2");
+    // EN 50160:2010 dip table: a 40% residual is row C (70 > u >= 40); the 10-cycle dip
+    // reads 210 ms by the IEC 61000-4-30 method, column 2 (200 ms < t <= 500 ms).
+    assert_eq!(events[0]["level_pct"], 40.0);
+    assert_eq!(events[0]["en_50160"], "C2");
     assert_eq!(events[1]["en_50160"], "S1");
     assert_eq!(events[2]["ieee_1159"], "momentary interruption");
     assert_eq!(std::fs::read_to_string(&csv).unwrap().lines().count(), 4);
@@ -714,4 +717,53 @@ fn every_event_command_refuses_a_guard_that_never_connects_the_load() {
             "{err}"
         );
     }
+}
+
+#[test]
+fn detect_takes_the_declared_supply_from_the_recording() {
+    // A 120 V, 60 Hz recording calibrated to 120 V: declared 120 V / 60 Hz without
+    // --nominal, so the 40% dip is found as a 40% dip and nothing else.
+    let wav = temp_path("mains-120.wav");
+    sagtrip_ok(&[
+        "synth",
+        "dip:40%:10cyc",
+        "--nominal",
+        "120V/60Hz",
+        "--out",
+        wav.to_str().unwrap(),
+    ]);
+    let out = sagtrip_ok(&[
+        "detect",
+        wav.to_str().unwrap(),
+        "--calibrate",
+        "120V",
+        "--json",
+    ]);
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["declared_rms_v"], 120.0);
+    assert_eq!(v["frequency_hz"], 60.0);
+    let events = v["events"].as_array().unwrap();
+    assert_eq!(events.len(), 1, "{events:?}");
+    assert_eq!(events[0]["kind"], "dip");
+    // IEC 61000-4-30 class A: residual within 0.2% of the declared voltage (from memory).
+    let level = events[0]["level_pct"].as_f64().unwrap();
+    assert!((level - 40.0).abs() < 0.2, "{level}");
+    // The frequency over the recording's interval, the dip's cycles left out: exactly the
+    // synthesised 60 Hz.
+    let f = &v["measured_frequency_hz"];
+    for k in ["min", "max"] {
+        assert!((f[k].as_f64().unwrap() - 60.0).abs() < 1e-3, "{f}");
+    }
+    // A declared 50 Hz supply does not fit a 60 Hz recording (more than 5% away).
+    sagtrip_fails(
+        &[
+            "detect",
+            wav.to_str().unwrap(),
+            "--calibrate",
+            "120V",
+            "--nominal",
+            "120V/50Hz",
+        ],
+        "more than 5%",
+    );
 }

@@ -287,3 +287,80 @@ fn the_example_recordings_hold_the_events_they_are_made_of() {
         assert_eq!(&found, kinds, "{file}");
     }
 }
+
+#[test]
+fn classes_are_taken_on_the_level_as_reported_at_every_table_boundary() {
+    // Events synthesised at exactly the boundary levels of EN 50160:2010 (dip rows
+    // A: 90 > u >= 80, B: 80 > u >= 70, C: 70 > u >= 40, D: 40 > u >= 5, X: 5 > u; swell rows
+    // S: u >= 120, T: 120 > u > 110) and IEEE 1159-2009 Table 2 (sag 0.1-0.9 pu, swell
+    // 1.1-1.8 pu, interruption below 0.1 pu). 10 cycles: 210 ms by the IEC 61000-4-30
+    // method, EN 50160 column 2 (200 < t <= 500 ms) and IEEE 1159 "instantaneous".
+    // `None`: not an event at all (a dip starts below 90%, a swell above 110%).
+    let cases: [(&str, Option<(EventKind, &str, &str)>); 8] = [
+        ("dip:90%:10cyc", None),
+        // The window across the onset reads sqrt((1 + 0.8^2) / 2) = 90.55%, not yet a dip
+        // (derived from the IEC 61000-4-30 window): 200 ms, column 1.
+        (
+            "dip:80%:10cyc",
+            Some((EventKind::Dip, "A1", "instantaneous sag")),
+        ),
+        (
+            "dip:70%:10cyc",
+            Some((EventKind::Dip, "B2", "instantaneous sag")),
+        ),
+        (
+            "dip:40%:10cyc",
+            Some((EventKind::Dip, "C2", "instantaneous sag")),
+        ),
+        (
+            "dip:10%:10cyc",
+            Some((EventKind::Dip, "D2", "instantaneous sag")),
+        ),
+        (
+            "dip:5%:10cyc",
+            Some((EventKind::Interruption, "D2", "momentary interruption")),
+        ),
+        ("swell:110%:10cyc", None),
+        (
+            "swell:120%:10cyc",
+            Some((EventKind::Swell, "S1", "instantaneous swell")),
+        ),
+    ];
+    for (spec, expected) in cases {
+        let v = synthetic(spec, 0.5, false);
+        let d = detect(&v, f64::from(RATE), 230.0, 50.0, Thresholds::default());
+        match expected {
+            None => assert!(d.events.is_empty(), "{spec}: {:?}", d.events),
+            Some((kind, en, ieee)) => {
+                assert_eq!(d.events.len(), 1, "{spec}: {:?}", d.events);
+                let e = &d.events[0];
+                assert_eq!(e.kind, kind, "{spec}");
+                assert_eq!(e.en_50160, en, "{spec}: level {}", e.level_pct);
+                assert_eq!(e.ieee_1159, ieee, "{spec}: level {}", e.level_pct);
+            }
+        }
+    }
+    // Rounding to the reported resolution decides: 39.996% reports as 40.00%, row C.
+    assert_eq!(sagtrip::detect::reported_level(39.996), 40.0);
+    assert_eq!(sagtrip::detect::en_50160(EventKind::Dip, 0.21, 40.0), "C2");
+    assert_eq!(sagtrip::detect::en_50160(EventKind::Dip, 0.21, 39.99), "D2");
+}
+
+#[test]
+fn the_frequency_leaves_out_cycles_an_event_distorts() {
+    // A recording at exactly 50 Hz with a deep dip, an interruption and a swell: each
+    // 10 s interval (IEC 61000-4-30) reads 50 Hz once the cycles near the events are left
+    // out (they shifted the zero crossings by milliseconds).
+    let v = synthetic(
+        "dip:10%:3cyc@90;gap:2s;interrupt:7cyc;gap:2s;swell:150%:5cyc",
+        0.5,
+        false,
+    );
+    let d = detect(&v, f64::from(RATE), 230.0, 50.0, Thresholds::default());
+    assert_eq!(d.events.len(), 3, "{:?}", d.events);
+    let intervals = d.frequency_intervals();
+    assert!(!intervals.is_empty());
+    for f in intervals {
+        assert!((f - 50.0).abs() < 1e-6, "{f}");
+    }
+}
