@@ -296,7 +296,8 @@ fn classes_are_taken_on_the_level_as_reported_at_every_table_boundary() {
     // 1.1-1.8 pu, interruption below 0.1 pu). 10 cycles: 210 ms by the IEC 61000-4-30
     // method, EN 50160 column 2 (200 < t <= 500 ms) and IEEE 1159 "instantaneous".
     // `None`: not an event at all (a dip starts below 90%, a swell above 110%).
-    let cases: [(&str, Option<(EventKind, &str, &str)>); 8] = [
+    type Expected = Option<(EventKind, &'static str, &'static str)>;
+    let cases: [(&str, Expected); 8] = [
         ("dip:90%:10cyc", None),
         // The window across the onset reads sqrt((1 + 0.8^2) / 2) = 90.55%, not yet a dip
         // (derived from the IEC 61000-4-30 window): 200 ms, column 1.
