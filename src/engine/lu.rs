@@ -131,7 +131,7 @@ const KEEP_THRESHOLD: f64 = 1e-3;
 /// The matrix stays in dense `dim` x `dim` storage (at protector sizes it fits in cache),
 /// but elimination only visits the entries of the structural pattern and its fill-in. The
 /// first factorisation chooses pivots by the Markowitz criterion (fewest operations) among
-/// entries within [`CHOICE_THRESHOLD`] of their column's largest, and records for each pivot
+/// entries within `CHOICE_THRESHOLD` (10%) of their column's largest, and records for each pivot
 /// the rows below it and the columns right of it. Later factorisations replay that plan
 /// ([`SparseLu::refactor`]), which costs only the real arithmetic; when a kept pivot has
 /// become too small against its column the caller chooses a new order
