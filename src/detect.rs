@@ -648,7 +648,7 @@ mod tests {
 
     #[test]
     fn en_50160_cells() {
-        // EN 50160:2010 dip table (check-values.md).
+        // EN 50160:2010 dip table (published).
         assert_eq!(en_50160(EventKind::Dip, 0.1, 85.0), "A1");
         assert_eq!(en_50160(EventKind::Dip, 0.3, 75.0), "B2");
         assert_eq!(en_50160(EventKind::Dip, 0.7, 50.0), "C3");
@@ -660,7 +660,7 @@ mod tests {
 
     #[test]
     fn ieee_1159_categories() {
-        // IEEE 1159-2009 Table 2 (check-values.md).
+        // IEEE 1159-2009 Table 2 (published).
         assert_eq!(
             ieee_1159(EventKind::Dip, 0.2, 40.0, 50.0),
             "instantaneous sag"

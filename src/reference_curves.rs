@@ -134,7 +134,7 @@ mod tests {
 
     #[test]
     fn published_points() {
-        // ITI (CBEMA) curve, 2000 revision (check-values.md).
+        // ITI (CBEMA) curve, 2000 revision (published curve).
         assert_eq!(iti_lower_pct(0.02), 0.0);
         assert_eq!(iti_lower_pct(0.021), 70.0);
         assert_eq!(iti_lower_pct(0.5), 70.0);
@@ -144,7 +144,7 @@ mod tests {
         assert!((iti_upper_pct(2.999e-3).unwrap() - 140.0).abs() < 0.1);
         assert_eq!(iti_upper_pct(0.1), Some(120.0));
         assert_eq!(iti_upper_pct(1.0), Some(110.0));
-        // SEMI F47-0706 (check-values.md).
+        // SEMI F47-0706 (published curve).
         assert_eq!(semi_f47_required_pct(0.2), Some(50.0));
         assert_eq!(semi_f47_required_pct(0.5), Some(70.0));
         assert_eq!(semi_f47_required_pct(1.0), Some(80.0));

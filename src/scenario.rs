@@ -282,15 +282,20 @@ fn run_until_settled(
     Ok(false)
 }
 
-/// The relay part switching the load.
-fn find_relay(circuit: &Circuit, name: Option<&str>) -> Result<Option<usize>, ScenarioError> {
-    let relays: Vec<usize> = circuit
+/// Indices of the circuit's relays.
+fn relay_parts(circuit: &Circuit) -> Vec<usize> {
+    circuit
         .parts
         .iter()
         .enumerate()
         .filter(|(_, p)| matches!(p.spec, PartSpec::Relay(_)))
         .map(|(i, _)| i)
-        .collect();
+        .collect()
+}
+
+/// The relay part switching the load.
+fn find_relay(circuit: &Circuit, name: Option<&str>) -> Result<Option<usize>, ScenarioError> {
+    let relays = relay_parts(circuit);
     match name {
         Some(n) => circuit
             .part(n)
@@ -409,13 +414,7 @@ pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, Scen
     let mains = find_mains(circuit, options.mains.as_deref())?;
     let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
     let relay = find_relay(circuit, options.relay.as_deref())?.ok_or(ScenarioError::NoRelay)?;
-    let relays: Vec<usize> = circuit
-        .parts
-        .iter()
-        .enumerate()
-        .filter(|(_, p)| matches!(p.spec, PartSpec::Relay(_)))
-        .map(|(i, _)| i)
-        .collect();
+    let relays = relay_parts(circuit);
     let rail = find_rail(circuit, options.rail.as_deref())?;
     let derived = derived_limit_s(circuit);
     let settle_limit_s = options.settle_limit_s.unwrap_or(derived);

@@ -200,7 +200,7 @@ fn lc_frequency(reltol: f64) -> f64 {
 
 #[test]
 fn lc_tank_rings_at_its_resonant_frequency() {
-    // LC 1 mH, 1 uF: f0 = 1/(2 pi sqrt(LC)) = 5032.921 Hz (check-values, derived).
+    // LC 1 mH, 1 uF: f0 = 1/(2 pi sqrt(LC)) = 5032.921 Hz (derived; Hayt, Kemmerly and Durbin).
     // The trapezoidal rule shortens the period by about (w h)^2 / 12; the step control
     // keeps that within 0.1% at the default tolerance, and closer at a tenth of it.
     let f0 = 5032.921;

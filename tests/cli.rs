@@ -180,7 +180,7 @@ fn run_without_a_circuit_powers_up_the_reference_guard() {
     let relay = &value["relays"][0];
     assert_eq!(relay["relay"], "relay");
     let pickup = relay["first_pickup_s"].as_f64().unwrap();
-    // Energised well under a second after power-up (reference-guard.md).
+    // Energised well under a second after power-up (the guard's design estimate).
     assert!(pickup > 0.3 && pickup < 1.0, "{pickup}");
     // The contact makes 6 ms after pick-up (the close travel).
     let made = relay["first_contact_made_s"].as_f64().unwrap();

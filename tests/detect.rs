@@ -110,7 +110,7 @@ fn a_clean_supply_with_harmonics_and_noise_has_no_events() {
 
 #[test]
 fn a_half_cycle_interruption_reads_as_the_method_predicts() {
-    // Derived from the definition (check-values.md): with the window aligned to zero
+    // Derived from the definition (IEC 61000-4-30 window): with the window aligned to zero
     // crossings, a 0% half-cycle dip at a zero crossing is seen by one window holding half a
     // cycle of each, sqrt((1 + 0^2)/2) = 70.7%, and lasts one half cycle more than applied.
     let v = synthetic("interrupt:0.5cyc", 0.5, false);

@@ -200,7 +200,7 @@ fn relay_picks_up_on_the_rl_exponential_and_bounces() {
         .find(|e| e.kind == EventKind::PickUp)
         .unwrap()
         .time;
-    // Pick-up at 75% of the final current: t = (L/R) ln 4 = 1.386294 L/R (check-values,
+    // Pick-up at 75% of the final current: t = (L/R) ln 4 = 1.386294 L/R (derived,
     // derived from the RL exponential), located within 10 us.
     assert!((pickup - 1.386_294 * tau).abs() < 10e-6, "{pickup}");
     // Contacts move after the close travel: NC breaks and NO makes at pick-up + 6 ms, then
@@ -252,7 +252,7 @@ fn relay_picks_up_on_the_rl_exponential_and_bounces() {
 fn astable_timer_matches_the_classic_formulas() {
     // Classic astable: Ra = 1 kohm, Rb = 10 kohm, C = 10 nF:
     // f = 1 / (ln2 (Ra + 2 Rb) C) = 6869.98 Hz, ~ 1.44 / ((Ra + 2 Rb) C),
-    // duty = (Ra + Rb) / (Ra + 2 Rb) = 0.5238 (timer data sheets; check-values).
+    // duty = (Ra + Rb) / (Ra + 2 Rb) = 0.5238 (timer data sheets; derived).
     let text = r#"
 [part.supply]
 kind = "voltage-source"
@@ -527,7 +527,7 @@ fn reference_guard_powers_up_and_settles_near_the_hand_estimates() {
         .find(|e| e.kind == EventKind::PickUp)
         .map(|e| e.time)
         .unwrap();
-    // "energised well under a second after power-up" (reference-guard.md).
+    // "energised well under a second after power-up" (the guard's design estimate).
     assert!(pickup > 0.3 && pickup < 1.0, "{pickup}");
     let last = |name: &str| *run.column(name).last().unwrap();
     // Zener at 5 mA gives 5.1 V; with (12 - 5.1)/2.2k = 3.1 mA into the zener and 1 mA
@@ -545,7 +545,7 @@ fn reference_guard_powers_up_and_settles_near_the_hand_estimates() {
 fn monostable_timer_pulse_lasts_1_1_rc() {
     // Classic monostable: a trigger pulse sets the flip-flop; the capacitor charges through
     // R from 0 to 2/3 of the supply: t = RC ln 3 = 1.0986 RC (timer data sheets;
-    // check-values). R = 100 kohm, C = 100 nF: 10.986 ms.
+    // derived). R = 100 kohm, C = 100 nF: 10.986 ms.
     let text = r#"
 [part.supply]
 kind = "voltage-source"

