@@ -99,6 +99,13 @@ pub struct Event {
     pub ieee_1159: String,
     /// EN 50160 table cell (`A1` .. `X5` for dips, `S1` .. `T3` for swells), or a note.
     pub en_50160: String,
+    /// Point-on-wave start: the first instant the waveform departs from the cycle before
+    /// it (see [`Detector`]), seconds; `None` when no clean departure was found (a noisy
+    /// or already disturbed waveform, a slow ramp).
+    pub wave_start_s: Option<f64>,
+    /// Point-on-wave end: the instant the waveform is back to the pre-event cycle (short
+    /// events) or departs from the event's own steady cycles (long ones), seconds.
+    pub wave_end_s: Option<f64>,
     /// Phase jump at onset, degrees, when one above the threshold was seen.
     pub phase_jump_deg: Option<f64>,
     /// Whether the recording ended during the event.
@@ -260,7 +267,28 @@ struct Open {
     kind: EventKind,
     start_s: f64,
     extreme: f64,
+    /// Point-on-wave start (sample position) and the departure levels it was found with.
+    wave: Option<WaveStart>,
 }
+
+/// A point-on-wave start and what is needed to find the matching end.
+struct WaveStart {
+    /// Sample position of the start.
+    at: f64,
+    /// Departure that marks a change, and the quiet level walked back (or on) to, volts.
+    trigger: f64,
+    floor: f64,
+    /// The cycle before the start (samples from index `reference_first`).
+    reference: Vec<f64>,
+    reference_first: u64,
+}
+
+/// A departure that marks a change of waveform: 3% of the declared peak (common
+/// practice for a point-on-wave trigger), or four times the quiet cycle's departure.
+const WAVE_TRIGGER: f64 = 0.03;
+/// The level the start is walked back to: 0.2% of the declared peak, or twice the quiet
+/// cycle's departure.
+const WAVE_FLOOR: f64 = 0.002;
 
 /// Streaming detector: feed samples in volts, then call [`Detector::finish`].
 pub struct Detector {
@@ -347,8 +375,8 @@ impl Detector {
                 self.next_boundary(predicted);
             }
         }
-        // Keep about three cycles of samples.
-        let keep = (6.0 * self.half_period) as u64 + 8;
+        // Keep about four cycles of samples (the point-on-wave search looks back 2.75).
+        let keep = (8.0 * self.half_period) as u64 + 8;
         let oldest_needed = self
             .boundaries
             .front()
@@ -466,24 +494,141 @@ impl Detector {
         });
     }
 
+    /// The kept sample at real position `x`, linearly interpolated.
+    fn at(&self, x: f64) -> Option<f64> {
+        let i = x.floor();
+        if i < self.first_index as f64 || i + 1.0 >= self.count as f64 {
+            return None;
+        }
+        let i = i as u64;
+        let f = x - i as f64;
+        Some(self.sample(i) * (1.0 - f) + self.sample(i + 1) * f)
+    }
+
+    /// The departure of sample `i` from the sample one cycle before it, volts.
+    fn departure(&self, i: u64) -> Option<f64> {
+        if i < self.first_index || i >= self.count {
+            return None;
+        }
+        Some(self.sample(i) - self.at(i as f64 - 2.0 * self.half_period)?)
+    }
+
+    /// The point-on-wave start of an event whose first Urms(1/2) window past the threshold
+    /// ends at sample position `stamp`. The start lies within that one-cycle window: the
+    /// first sample there whose departure from the cycle before exceeds the trigger, walked
+    /// back to where the departure falls to the floor (interpolated between samples).
+    fn wave_start(&self, stamp: f64) -> Option<WaveStart> {
+        let n = 2.0 * self.half_period;
+        let peak = self.declared_v * std::f64::consts::SQRT_2;
+        let lo = (stamp - 1.25 * n).ceil().max(0.0) as u64;
+        let hi = (stamp.floor() as u64).min(self.count.checked_sub(1)?);
+        let quiet_from = (stamp - 1.75 * n).ceil().max(0.0) as u64;
+        let quiet = (quiet_from..lo)
+            .map(|i| self.departure(i).map(f64::abs))
+            .collect::<Option<Vec<f64>>>()?
+            .into_iter()
+            .fold(0.0, f64::max);
+        let trigger = (WAVE_TRIGGER * peak).max(4.0 * quiet);
+        let floor = (WAVE_FLOOR * peak).max(2.0 * quiet);
+        let first = (lo..=hi).find(|&i| self.departure(i).is_some_and(|d| d.abs() > trigger))?;
+        let mut j = first;
+        while j > quiet_from && self.departure(j - 1)?.abs() > floor {
+            j -= 1;
+        }
+        let (a, b) = (self.departure(j - 1)?.abs(), self.departure(j)?.abs());
+        let at = (j - 1) as f64 + ((floor - a) / (b - a)).clamp(0.0, 1.0);
+        let reference_first = (at - n).floor() as u64 - 1;
+        let reference = (reference_first..=at.ceil() as u64 + 1)
+            .map(|i| self.at(i as f64))
+            .collect::<Option<Vec<f64>>>()?;
+        Some(WaveStart {
+            at,
+            trigger,
+            floor,
+            reference,
+            reference_first,
+        })
+    }
+
+    /// The point-on-wave end of the event that started at `wave` and whose first
+    /// Urms(1/2) window back past the threshold and hysteresis ends at `stamp`. A short
+    /// event (under three cycles from its start) ends where the waveform is back to the
+    /// cycle before the start, repeated: the last sample that departs from it by more than
+    /// the trigger, walked on to the floor. A longer one ends where the waveform first
+    /// departs from its own previous cycle in the last window, walked back to the floor.
+    fn wave_end(&self, wave: &WaveStart, stamp: f64) -> Option<f64> {
+        let n = 2.0 * self.half_period;
+        let hi = (stamp.floor() as u64).min(self.count.checked_sub(1)?);
+        if stamp - wave.at < 3.0 * n {
+            let reference = |x: f64| -> Option<f64> {
+                let k = ((x - wave.at) / n).ceil().max(0.0);
+                let y = x - k * n - wave.reference_first as f64;
+                let i = y.floor();
+                let r = &wave.reference;
+                if i < 0.0 || i as usize + 1 >= r.len() {
+                    return None;
+                }
+                let f = y - i;
+                Some(r[i as usize] * (1.0 - f) + r[i as usize + 1] * f)
+            };
+            let error = |i: u64| Some((self.sample(i) - reference(i as f64)?).abs());
+            let from = wave.at.ceil() as u64;
+            if from < self.first_index || from > hi {
+                return None;
+            }
+            let mut last = None;
+            for i in from..=hi {
+                if error(i)? > wave.trigger {
+                    last = Some(i);
+                }
+            }
+            let mut j = last?;
+            while j < hi && error(j + 1)? > wave.floor {
+                j += 1;
+            }
+            if j == hi {
+                return None;
+            }
+            let (a, b) = (error(j)?, error(j + 1)?);
+            return Some(j as f64 + ((a - wave.floor) / (a - b)).clamp(0.0, 1.0));
+        }
+        let lo = (stamp - 1.25 * n).ceil() as u64;
+        let quiet_from = (stamp - 1.75 * n).ceil() as u64;
+        let quiet = (quiet_from..lo)
+            .map(|i| self.departure(i).map(f64::abs))
+            .collect::<Option<Vec<f64>>>()?
+            .into_iter()
+            .fold(0.0, f64::max);
+        let trigger = wave.trigger.max(4.0 * quiet);
+        let floor = wave.floor.max(2.0 * quiet);
+        let first = (lo..=hi).find(|&i| self.departure(i).is_some_and(|d| d.abs() > trigger))?;
+        let mut j = first;
+        while j > quiet_from && self.departure(j - 1)?.abs() > floor {
+            j -= 1;
+        }
+        let (a, b) = (self.departure(j - 1)?.abs(), self.departure(j)?.abs());
+        Some((j - 1) as f64 + ((floor - a) / (b - a)).clamp(0.0, 1.0))
+    }
+
     /// The event state machine on one Urms(1/2) value (percent).
     fn follow(&mut self, time_s: f64, u: f64) {
         let t = &self.thresholds;
         match &mut self.open {
             None => {
-                if u < t.dip_pct {
-                    self.open = Some(Open {
-                        kind: EventKind::Dip,
-                        start_s: time_s,
-                        extreme: u,
-                    });
+                let kind = if u < t.dip_pct {
+                    EventKind::Dip
                 } else if u > t.swell_pct {
-                    self.open = Some(Open {
-                        kind: EventKind::Swell,
-                        start_s: time_s,
-                        extreme: u,
-                    });
-                }
+                    EventKind::Swell
+                } else {
+                    return;
+                };
+                let wave = self.wave_start(time_s * self.rate);
+                self.open = Some(Open {
+                    kind,
+                    start_s: time_s,
+                    extreme: u,
+                    wave,
+                });
             }
             Some(open) => {
                 let ended = match open.kind {
@@ -514,9 +659,15 @@ impl Detector {
             open.kind
         };
         let duration_s = end_s - open.start_s;
+        let wave_end = match (&open.wave, open_at_end) {
+            (Some(w), false) => self.wave_end(w, end_s * self.rate),
+            _ => None,
+        };
         self.result.events.push(Event {
             kind,
             start_s: open.start_s,
+            wave_start_s: open.wave.as_ref().map(|w| w.at / self.rate),
+            wave_end_s: wave_end.map(|x| x / self.rate),
             duration_s,
             level_pct: open.extreme,
             ieee_1159: ieee_1159(kind, duration_s, open.extreme, self.frequency_hz),

@@ -1077,10 +1077,30 @@ fn run_event_command(args: &RunArgs) -> Result<String, String> {
     say!(out, "  trip latency            {}", ms(m.trip_latency_ms));
     let restore = if m.tripped && !m.load_connected_at_end {
         format!("not reconnected within {} s", result.restore_limit_s)
+    } else if m.tripped && m.restore_latency_ms.is_none() {
+        "- (reconnected for good before the event ended)".to_string()
     } else {
         ms(m.restore_latency_ms)
     };
     say!(out, "  restore latency         {restore}");
+    if m.reconnections.len() > 1 || (m.tripped && m.restore_latency_ms.is_none()) {
+        for r in &m.reconnections {
+            let after = match (r.after_disturbance, r.latency_ms) {
+                (Some(k), Some(l)) => format!("{l:.2} ms after disturbance {k} ended"),
+                _ => "before the first disturbance ended".to_string(),
+            };
+            let during = if r.during_disturbance {
+                ", during a disturbance"
+            } else {
+                ""
+            };
+            say!(
+                out,
+                "  reconnected             {:.2} ms after onset ({after}{during})",
+                r.since_onset_ms
+            );
+        }
+    }
     say!(out, "  relay release time      {}", ms(m.release_time_ms));
     say!(out, "  relay operate time      {}", ms(m.operate_time_ms));
     say!(out, "  contact bounce          {}", ms(m.bounce_ms));
@@ -2245,9 +2265,10 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
     } else {
         say!(
             out,
-            "\n{:<13} {:>10} {:>10} {:>8}  {:<8} {:>12} {:>12}",
+            "\n{:<13} {:>10} {:>10} {:>10} {:>8}  {:<8} {:>12} {:>12}",
             "event",
             "start (s)",
+            "onset (s)",
             "duration",
             "level",
             "tripped",
@@ -2258,9 +2279,10 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
             let e = &r.event;
             say!(
                 out,
-                "{:<13} {:>10.4} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
+                "{:<13} {:>10.4} {:>10} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
                 e.kind.name(),
                 e.start_s,
+                e.wave_start_s.map_or("-".into(), |t| format!("{t:.4}")),
                 e.duration_s * 1e3,
                 e.level_pct,
                 match (r.tripped, r.chatter) {
@@ -2272,11 +2294,18 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
                     .map_or("-".into(), |v| format!("{v:.1} ms")),
                 match (r.tripped, r.restore_latency_ms) {
                     (_, Some(v)) => format!("{v:.1} ms"),
+                    (true, None) if r.reconnected_during_event => "during it".into(),
                     (true, None) => "not by the end".into(),
                     (false, None) => "-".into(),
                 },
             );
         }
+        say!(
+            out,
+            "(start: IEC 61000-4-30 Urms(1/2); onset: where the waveform departs from the cycle \
+             before. Trip and reconnection times count from the onset and the point-on-wave end, \
+             or from the Urms(1/2) start and end where the onset shows \"-\".)"
+        );
     }
     for t in &replay.nuisance_trips {
         say!(

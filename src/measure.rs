@@ -16,8 +16,8 @@ pub struct Window {
     pub event_end_s: f64,
     /// End of the run, seconds.
     pub run_end_s: f64,
-    /// Number of disturbances in the event (gaps excluded).
-    pub disturbances: usize,
+    /// Start and end of each disturbance of the event (gaps excluded), seconds.
+    pub disturbances: Vec<(f64, f64)>,
     /// Index of the load relay's part.
     pub relay_part: usize,
     /// Whether the load path (normally-open contact) was closed at onset.
@@ -32,8 +32,11 @@ pub struct Measurements {
     /// Onset to the first opening of the load path.
     pub trip_latency_ms: Option<f64>,
     /// End of the event to the final reconnection of the load path (after its bounce);
-    /// `None` if it did not trip or is still open at the end of the run.
+    /// `None` if it did not trip, is still open at the end of the run, or reconnected for
+    /// good before the event ended (see `reconnections`). Never negative.
     pub restore_latency_ms: Option<f64>,
+    /// Every reconnection of the load path at or after onset, in time order.
+    pub reconnections: Vec<Reconnection>,
     /// First drop-out at or after onset to the load path opening.
     pub release_time_ms: Option<f64>,
     /// Last pick-up to the first making of the load path after it.
@@ -55,6 +58,20 @@ pub struct Measurements {
     pub load_interruption_ms: f64,
     /// Whether the load path is closed at the end of the run.
     pub load_connected_at_end: bool,
+}
+
+/// One reconnection of the load path (its last make, after the bounce).
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Reconnection {
+    /// Onset to the reconnection, milliseconds.
+    pub since_onset_ms: f64,
+    /// The disturbance (1 = the first, gaps excluded) that ended last before the
+    /// reconnection; `None` if it came before the first disturbance ended.
+    pub after_disturbance: Option<usize>,
+    /// The end of that disturbance to the reconnection, milliseconds; never negative.
+    pub latency_ms: Option<f64>,
+    /// Whether the reconnection came while a disturbance was still in progress.
+    pub during_disturbance: bool,
 }
 
 /// One opening of the load path and its reconnection.
@@ -161,8 +178,17 @@ pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
         .zip(first_make_after_pickup)
         .map(|(p, m)| ms(m - p));
     let restored = tripped && closed;
+    let openings = load_path_openings(&mine, window.closed_at_onset);
+    let reconnections: Vec<Reconnection> = openings
+        .iter()
+        .filter_map(|o| o.reconnected_s)
+        .map(|r| reconnection(r, window))
+        .collect();
+    // Counted from the event's end only when the final reconnection came after it.
     let restore_latency_ms = if restored {
-        last_make.map(|m| ms(m - window.event_end_s))
+        last_make
+            .filter(|&m| m >= window.event_end_s)
+            .map(|m| ms(m - window.event_end_s))
     } else {
         None
     };
@@ -177,8 +203,7 @@ pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
         .iter()
         .filter(|e| matches!(e.kind, EventKind::PickUp | EventKind::DropOut))
         .count();
-    let openings = load_path_openings(&mine, window.closed_at_onset);
-    let chatter = chatters(&openings, window.disturbances);
+    let chatter = chatters(&openings, window.disturbances.len());
     Measurements {
         tripped,
         trip_latency_ms: if tripped {
@@ -187,6 +212,7 @@ pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
             None
         },
         restore_latency_ms,
+        reconnections,
         release_time_ms,
         operate_time_ms,
         bounce_ms,
@@ -199,6 +225,24 @@ pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
         chatter,
         load_interruption_ms: ms(open_total),
         load_connected_at_end: closed,
+    }
+}
+
+/// Places a reconnection at `time_s` against the event's disturbances.
+fn reconnection(time_s: f64, window: &Window) -> Reconnection {
+    let ended = window
+        .disturbances
+        .iter()
+        .rposition(|&(_, end)| end <= time_s);
+    let during_disturbance = window
+        .disturbances
+        .iter()
+        .any(|&(start, end)| start <= time_s && time_s < end);
+    Reconnection {
+        since_onset_ms: (time_s - window.onset_s) * 1e3,
+        after_disturbance: ended.map(|k| k + 1),
+        latency_ms: ended.map(|k| (time_s - window.disturbances[k].1) * 1e3),
+        during_disturbance,
     }
 }
 
@@ -249,7 +293,7 @@ mod tests {
             onset_s: 1.0,
             event_end_s: 1.2,
             run_end_s: 3.0,
-            disturbances: 1,
+            disturbances: vec![(1.0, 1.2)],
             relay_part: 3,
             closed_at_onset: true,
         }
@@ -308,10 +352,48 @@ mod tests {
         assert_eq!(m.restore_latency_ms, None);
         // The same sequence over a two-dip event is one opening per dip: no chatter.
         let two = Window {
-            disturbances: 2,
+            disturbances: vec![(1.0, 1.15), (1.25, 1.4)],
             ..window()
         };
         assert!(!measure(&events, &two).chatter);
+    }
+
+    #[test]
+    fn reconnections_between_disturbances_are_never_negative() {
+        // Two interruptions (1.0 .. 1.3 s and 1.8 .. 2.1 s) and a shallow variation
+        // (2.1 .. 4.1 s) that the protector accepts: it reconnects 0.6 s after the first
+        // interruption, trips on the second, and reconnects 0.7 s after it, while the
+        // variation is still in progress. The event ends at 4.1 s, after the last
+        // reconnection, so there is no restore latency from the event's end.
+        let w = Window {
+            event_end_s: 4.1,
+            run_end_s: 6.0,
+            disturbances: vec![(1.0, 1.3), (1.8, 2.1), (2.1, 4.1)],
+            ..window()
+        };
+        let events = [
+            event(1.05, EventKind::DropOut),
+            event(1.053, EventKind::NormallyOpenBroken),
+            event(1.894, EventKind::PickUp),
+            event(1.9, EventKind::NormallyOpenMade),
+            event(1.95, EventKind::DropOut),
+            event(1.953, EventKind::NormallyOpenBroken),
+            event(2.794, EventKind::PickUp),
+            event(2.8, EventKind::NormallyOpenMade),
+        ];
+        let m = measure(&events, &w);
+        assert_eq!(m.restore_latency_ms, None);
+        assert_eq!(m.reconnections.len(), 2);
+        let (a, b) = (m.reconnections[0], m.reconnections[1]);
+        assert_eq!(a.after_disturbance, Some(1));
+        assert!((a.latency_ms.unwrap() - 600.0).abs() < 1e-9);
+        assert!(!a.during_disturbance);
+        assert_eq!(b.after_disturbance, Some(2));
+        assert!((b.latency_ms.unwrap() - 700.0).abs() < 1e-9);
+        assert!(b.during_disturbance);
+        assert!((b.since_onset_ms - 1800.0).abs() < 1e-9);
+        // Two openings for three disturbances: no chatter.
+        assert!(!m.chatter);
     }
 
     #[test]

@@ -653,7 +653,11 @@ impl Settled {
             onset_s,
             event_end_s,
             run_end_s,
-            disturbances: envelope.windows.len(),
+            disturbances: envelope
+                .windows
+                .iter()
+                .map(|&(a, b)| (onset_s + a, onset_s + b))
+                .collect(),
             relay_part: relay.unwrap_or(usize::MAX),
             closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
         };
@@ -693,17 +697,32 @@ pub struct ReplayTrip {
     pub reconnected_s: Option<f64>,
 }
 
+/// The instants a replayed event's latencies count from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum LatencyReference {
+    /// The point-on-wave start and end (as `run` counts from the true onset and end).
+    PointOnWave,
+    /// The IEC 61000-4-30 Urms(1/2) start and end (no clean departure in the waveform).
+    UrmsHalfCycle,
+}
+
 /// How the protector answered one detected event of a recording.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct EventResponse {
-    /// The event as detected (IEC 61000-4-30 method).
+    /// The event as detected (IEC 61000-4-30 method, with its point-on-wave start and end).
     pub event: crate::detect::Event,
     /// Whether a trip was assigned to it.
     pub tripped: bool,
-    /// From the event's detected start to the trip, milliseconds.
+    /// What the latencies count from.
+    pub latencies_from: LatencyReference,
+    /// From the event's start to the trip, milliseconds.
     pub trip_latency_ms: Option<f64>,
-    /// From the event's detected end to the last reconnection, milliseconds.
+    /// From the event's end to the last reconnection, milliseconds; `None` if the load
+    /// reconnected before the end (see `reconnected_during_event`). Never negative.
     pub restore_latency_ms: Option<f64>,
+    /// The last reconnection came before the event's end.
+    pub reconnected_during_event: bool,
     /// Openings of the load path assigned to the event (bounce excluded).
     pub openings: usize,
     /// The load path opened or closed more than once for the event.
@@ -925,11 +944,26 @@ impl Settled {
                 .collect();
             let trip = mine.first().map(|&i| trips[i].clone());
             let reconnected = mine.last().and_then(|&i| trips[i].reconnected_s);
+            // Latencies count from the point-on-wave start and end, as `run` counts from
+            // the event's true onset and end; the Urms(1/2) times stand in when the
+            // waveform gave no clean departure.
+            let (onset, onset_from) = match event.wave_start_s {
+                Some(t) => (t, LatencyReference::PointOnWave),
+                None => (event.start_s, LatencyReference::UrmsHalfCycle),
+            };
+            let wave_end = match (event.wave_start_s, event.wave_end_s) {
+                (Some(_), Some(t)) => t,
+                _ => end,
+            };
             responses.push(EventResponse {
                 event: event.clone(),
                 tripped: trip.is_some(),
-                trip_latency_ms: trip.as_ref().map(|t| (t.time_s - event.start_s) * 1e3),
-                restore_latency_ms: reconnected.map(|r| (r - end) * 1e3),
+                latencies_from: onset_from,
+                trip_latency_ms: trip.as_ref().map(|t| (t.time_s - onset).max(0.0) * 1e3),
+                restore_latency_ms: reconnected
+                    .filter(|&r| r >= wave_end)
+                    .map(|r| (r - wave_end) * 1e3),
+                reconnected_during_event: reconnected.is_some_and(|r| r < wave_end),
                 openings: openings.len(),
                 chatter: crate::measure::chatters(&openings, 1),
                 trip,

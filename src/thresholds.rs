@@ -211,7 +211,13 @@ impl Tester<'_> {
             return Ok(None);
         }
         // The final reconnection came before the end of the event: while `level` was held.
-        Ok(Some(m.restore_latency_ms.is_some_and(|r| r < 0.0)))
+        let end_ms = run.envelope.end_s * 1e3;
+        Ok(Some(
+            m.load_connected_at_end
+                && m.reconnections
+                    .last()
+                    .is_some_and(|r| r.since_onset_ms < end_ms),
+        ))
     }
 }
 
@@ -328,8 +334,10 @@ fn side(
         rate_v_per_s: (1.0 - far).abs() * rms / options.ramp_s,
         trip_v: m.trip_latency_ms.map(|t| level_at(t / 1e3)),
         reconnect_v: m
-            .restore_latency_ms
-            .map(|r| level_at(run.envelope.end_s + r / 1e3)),
+            .reconnections
+            .last()
+            .filter(|_| m.load_connected_at_end)
+            .map(|r| level_at(r.since_onset_ms / 1e3)),
         relay_transitions: m.relay_transitions,
         relay_chatters: m.chatter,
         load_path_openings: m.load_path_openings,
