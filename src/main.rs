@@ -1288,6 +1288,7 @@ fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
 struct Journal {
     points: std::sync::Mutex<std::fs::File>,
     boundary: std::sync::Mutex<std::fs::File>,
+    duration_boundary: std::sync::Mutex<std::fs::File>,
 }
 
 /// What a journal folder holds on opening.
@@ -1295,6 +1296,7 @@ type JournalContents = (
     Journal,
     Vec<sagtrip::sweep::Point>,
     Vec<(String, sagtrip::sweep::BoundaryPoint)>,
+    Vec<sagtrip::sweep::DurationBoundaryPoint>,
 );
 
 impl Journal {
@@ -1305,11 +1307,11 @@ impl Journal {
         settings: &serde_json::Value,
         resume: bool,
     ) -> Result<JournalContents, String> {
-        use sagtrip::sweep::{BOUNDARY_HEADER, POINTS_HEADER};
+        use sagtrip::sweep::{BOUNDARY_HEADER, DURATION_BOUNDARY_HEADER, POINTS_HEADER};
         std::fs::create_dir_all(dir)
             .map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
         let settings_path = dir.join("sweep-settings.json");
-        let (points, boundary) = if settings_path.exists() {
+        let (points, boundary, duration_boundary) = if settings_path.exists() {
             if !resume {
                 return Err(format!(
                     "{} already holds a sweep: add --resume to continue it, or choose another folder",
@@ -1329,6 +1331,7 @@ impl Journal {
             (
                 read_journal(&dir.join("points.csv")),
                 read_journal(&dir.join("boundary.csv")),
+                read_journal(&dir.join("duration-boundary.csv")),
             )
         } else {
             write_atomic(&settings_path, |w| {
@@ -1339,7 +1342,7 @@ impl Journal {
                 )
             })
             .map_err(|e| format!("cannot write {}: {e}", settings_path.display()))?;
-            (Vec::new(), Vec::new())
+            (Vec::new(), Vec::new(), Vec::new())
         };
         let points_done = points
             .iter()
@@ -1348,6 +1351,10 @@ impl Journal {
         let boundary_done = boundary
             .iter()
             .filter_map(|l| sagtrip::sweep::parse_boundary_line(l))
+            .collect();
+        let duration_boundary_done = duration_boundary
+            .iter()
+            .filter_map(|l| sagtrip::sweep::parse_duration_boundary_line(l))
             .collect();
         let open = |name: &str, header: &str| -> Result<std::fs::File, String> {
             let path = dir.join(name);
@@ -1367,9 +1374,14 @@ impl Journal {
             Journal {
                 points: std::sync::Mutex::new(open("points.csv", POINTS_HEADER)?),
                 boundary: std::sync::Mutex::new(open("boundary.csv", BOUNDARY_HEADER)?),
+                duration_boundary: std::sync::Mutex::new(open(
+                    "duration-boundary.csv",
+                    DURATION_BOUNDARY_HEADER,
+                )?),
             },
             points_done,
             boundary_done,
+            duration_boundary_done,
         ))
     }
 
@@ -1473,12 +1485,12 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
         "refine": !args.no_refine,
         "shard": format!("{k}/{n}"),
     });
-    let (journal, done_points, done_boundary) = match &args.out {
+    let (journal, done_points, done_boundary, done_durations) = match &args.out {
         Some(dir) => {
-            let (j, p, b) = Journal::open(dir, &settings, args.resume)?;
-            (Some(j), p, b)
+            let (j, p, b, d) = Journal::open(dir, &settings, args.resume)?;
+            (Some(j), p, b, d)
         }
-        None => (None, Vec::new(), Vec::new()),
+        None => (None, Vec::new(), Vec::new(), Vec::new()),
     };
 
     // This shard's points not yet in the journal.
@@ -1526,14 +1538,40 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
             ));
         }
     }
-    for (side, range) in sides {
-        for &d in &my_durations {
-            if boundaries
+    // The durations of the level boundaries, and the levels of the duration boundary,
+    // still to refine.
+    let level_todo: Vec<(&str, (f64, f64), f64)> = sides
+        .iter()
+        .flat_map(|&(side, range)| my_durations.iter().map(move |&d| (side, range, d)))
+        .filter(|(side, _, d)| {
+            !boundaries
                 .iter()
-                .any(|(s, b)| s == side && b.duration_s == d)
-            {
-                continue;
-            }
+                .any(|(s, b)| s == side && b.duration_s == *d)
+        })
+        .collect();
+    let mut durations_done = done_durations;
+    let duration_todo: Vec<f64> = if args.no_refine {
+        Vec::new()
+    } else {
+        shard(&grid.levels_pct, k, n)
+            .into_iter()
+            .filter(|l| !durations_done.iter().any(|b| b.level_pct == *l))
+            .collect()
+    };
+    let bar = if args.quiet {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::new((level_todo.len() + duration_todo.len()) as u64)
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{bar:40} {pos}/{len} boundary points ({msg}), {elapsed} elapsed, about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    for (side, range, d) in level_todo {
+        bar.set_message(format!("{side} level at {}", short_duration(d)));
+        {
             let b = refine_boundary(
                 &settled,
                 &circuit,
@@ -1547,8 +1585,36 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
                 Journal::append(&j.boundary, &boundary_line(side, &b));
             }
             boundaries.push((side.to_string(), b));
+            bar.inc(1);
         }
     }
+    let known = sagtrip::sweep::cells(&points);
+    let range = (
+        grid.durations_s.iter().copied().fold(f64::INFINITY, f64::min),
+        grid.durations_s.iter().copied().fold(0.0, f64::max),
+    );
+    for level in duration_todo {
+        bar.set_message(format!("longest ride-through at {level}%"));
+        let b = sagtrip::sweep::refine_duration_boundary(
+            &settled,
+            &circuit,
+            level,
+            &grid.phases_deg,
+            range,
+            &known,
+            DEFAULT_EDGE_S,
+        )
+        .map_err(|e| format!("{name}: longest ride-through: {e}"))?;
+        if let Some(j) = &journal {
+            Journal::append(
+                &j.duration_boundary,
+                &sagtrip::sweep::duration_boundary_line(&b),
+            );
+        }
+        durations_done.push(b);
+        bar.inc(1);
+    }
+    bar.finish_and_clear();
     let wall = started.elapsed().as_secs_f64();
     report_sweep(
         &SweepReport {
@@ -1557,6 +1623,7 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
             grid: &grid,
             points: &points,
             boundaries: &boundaries,
+            duration_boundary: &durations_done,
             frequency_hz: frequency,
             resolution_pct: args.resolution,
             shard: (k, n),
@@ -1576,6 +1643,7 @@ struct SweepReport<'a> {
     grid: &'a sagtrip::sweep::Grid,
     points: &'a [sagtrip::sweep::Point],
     boundaries: &'a [(String, sagtrip::sweep::BoundaryPoint)],
+    duration_boundary: &'a [sagtrip::sweep::DurationBoundaryPoint],
     frequency_hz: f64,
     resolution_pct: f64,
     shard: (usize, usize),
@@ -1606,6 +1674,8 @@ fn report_sweep(
         list
     };
     let (dips, swells) = (side("dip"), side("swell"));
+    let mut longest = r.duration_boundary.to_vec();
+    longest.sort_by(|a, b| a.level_pct.total_cmp(&b.level_pct));
     let failed = points
         .iter()
         .filter(|p| p.outcome == Outcome::Failed)
@@ -1619,6 +1689,7 @@ fn report_sweep(
         "cells": map,
         "dip_boundary": dips,
         "swell_boundary": swells,
+        "duration_boundary": longest,
         "wall_time_s": r.wall_s,
         "power_up_wall_time_s": r.settle_wall_s,
     });
@@ -1641,6 +1712,7 @@ fn report_sweep(
             durations_s: &r.grid.durations_s,
             levels_pct: &sorted_levels,
             boundaries: vec![&dips, &swells],
+            duration_boundary: &longest,
             frequency_hz: r.frequency_hz,
         };
         write_plot(
@@ -1730,10 +1802,34 @@ fn report_sweep(
             }
         }
     }
+    if !longest.is_empty() {
+        use sagtrip::sweep::DurationSearch;
+        say!(
+            out,
+            "\nlongest event ridden through at every phase (refined to 1% of the duration or 0.5 ms):"
+        );
+        for b in &longest {
+            let text = match (b.status, b.longest_ride_through_s, b.shortest_trip_s) {
+                (DurationSearch::Found, Some(ride), Some(trip)) => format!(
+                    "{} (trips at {})",
+                    sagtrip::units::format_duration(ride),
+                    sagtrip::units::format_duration(trip)
+                ),
+                (DurationSearch::RidesThroughAll, Some(ride), _) => {
+                    format!("at least {} (the longest searched)", sagtrip::units::format_duration(ride))
+                }
+                (_, _, Some(trip)) => {
+                    format!("none: trips at {} (the shortest searched)", sagtrip::units::format_duration(trip))
+                }
+                _ => "-".into(),
+            };
+            say!(out, "  {:>7}%  {text}", b.level_pct);
+        }
+    }
     if let Some(dir) = out_dir {
         say!(
             out,
-            "\nwritten: {}/points.csv, boundary.csv, sweep.json",
+            "\nwritten: {}/points.csv, boundary.csv, duration-boundary.csv, sweep.json",
             dir.display()
         );
     }
@@ -1749,6 +1845,7 @@ fn merge(args: &MergeArgs) -> Result<String, String> {
     let mut settings: Option<serde_json::Value> = None;
     let mut points = Vec::new();
     let mut boundaries = Vec::new();
+    let mut durations: Vec<sagtrip::sweep::DurationBoundaryPoint> = Vec::new();
     for dir in &args.folders {
         let path = dir.join("sweep-settings.json");
         let text = std::fs::read_to_string(&path)
@@ -1779,7 +1876,13 @@ fn merge(args: &MergeArgs) -> Result<String, String> {
                 .iter()
                 .filter_map(|l| parse_boundary_line(l)),
         );
+        durations.extend(
+            read_journal(&dir.join("duration-boundary.csv"))
+                .iter()
+                .filter_map(|l| sagtrip::sweep::parse_duration_boundary_line(l)),
+        );
     }
+    durations.sort_by(|a, b| a.level_pct.total_cmp(&b.level_pct));
     let settings = settings.ok_or("merge needs at least one folder")?;
     let numbers = |key: &str| -> Vec<f64> {
         settings[key]
@@ -1811,6 +1914,14 @@ fn merge(args: &MergeArgs) -> Result<String, String> {
         Ok(())
     })
     .map_err(|e| format!("cannot write boundary.csv: {e}"))?;
+    write_atomic(&args.out.join("duration-boundary.csv"), |w| {
+        writeln!(w, "{}", sagtrip::sweep::DURATION_BOUNDARY_HEADER)?;
+        for b in &durations {
+            writeln!(w, "{}", sagtrip::sweep::duration_boundary_line(b))?;
+        }
+        Ok(())
+    })
+    .map_err(|e| format!("cannot write duration-boundary.csv: {e}"))?;
     let missing = grid.points().len().saturating_sub(ordered.len());
     let name = settings["circuit"].as_str().unwrap_or("").to_string();
     let title = settings["title"].as_str().unwrap_or("").to_string();
@@ -1821,6 +1932,7 @@ fn merge(args: &MergeArgs) -> Result<String, String> {
             grid: &grid,
             points: &ordered,
             boundaries: &boundaries,
+            duration_boundary: &durations,
             frequency_hz: settings["frequency_hz"].as_f64().unwrap_or(50.0),
             resolution_pct: settings["resolution_pct"].as_f64().unwrap_or(0.5),
             shard: (1, 1),
@@ -2622,6 +2734,7 @@ fn table_command(args: &TableArgs) -> Result<String, String> {
             durations_s: &map_grid.durations_s,
             levels_pct: &map_grid.levels_pct,
             boundaries: Vec::new(),
+            duration_boundary: &table.longest_ride_through,
             frequency_hz: settled.frequency_hz,
         })?;
         let mut figures: Vec<(String, String)> = vec![(

@@ -407,6 +407,8 @@ pub struct MapData<'a> {
     pub levels_pct: &'a [f64],
     /// Refined boundaries (dips, then swells).
     pub boundaries: Vec<&'a [crate::sweep::BoundaryPoint]>,
+    /// The longest ride-through at each level (the map's other edge), by level.
+    pub duration_boundary: &'a [crate::sweep::DurationBoundaryPoint],
     /// Mains frequency, for the IEC test points.
     pub frequency_hz: f64,
 }
@@ -584,6 +586,39 @@ fn draw_map<DB: DrawingBackend>(
                     .map(|p| Circle::new(p, 3, style.filled())),
             )
             .map_err(e)?;
+    }
+    // The longest ride-through per level: a cross at each level's bracket (dips and
+    // swells drawn apart, each joined across its levels).
+    let navy = RGBColor(20, 40, 120);
+    let style = ShapeStyle::from(&navy).stroke_width(2);
+    let mut labelled = false;
+    for swell in [false, true] {
+        let points: Vec<(f64, f64)> = map
+            .duration_boundary
+            .iter()
+            .filter(|b| (b.level_pct > 100.0) == swell)
+            .filter(|b| b.status == crate::sweep::DurationSearch::Found)
+            .filter_map(|b| b.longest_ride_through_s.map(|d| (d, b.level_pct)))
+            .filter(|&(d, l)| d >= x0 && d <= x1 && l <= y_top)
+            .collect();
+        if points.is_empty() {
+            continue;
+        }
+        chart
+            .draw_series(LineSeries::new(
+                points.clone(),
+                ShapeStyle::from(&navy).stroke_width(1),
+            ))
+            .map_err(e)?;
+        let series = chart
+            .draw_series(points.into_iter().map(|p| Cross::new(p, 5, style)))
+            .map_err(e)?;
+        if !labelled {
+            labelled = true;
+            series
+                .label("longest event ridden through, per level")
+                .legend(move |(x, y)| Cross::new((x + 7, y), 5, style));
+        }
     }
     legend(&mut chart, SeriesLabelPosition::LowerRight)?;
     root.present().map_err(e)?;

@@ -298,6 +298,199 @@ pub fn refine_boundary(
     }
 }
 
+/// How the search for the longest ride-through at one level ended.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum DurationSearch {
+    /// Bracketed: rides through at `longest_ride_through_s`, trips at `shortest_trip_s`.
+    Found,
+    /// Rides through even the longest duration searched (the ride-through is at least
+    /// that long).
+    RidesThroughAll,
+    /// Trips (or chatters) even at the shortest duration searched.
+    TripsAtAll,
+}
+
+/// The other edge of the trip map: at one level, the longest event ridden through.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct DurationBoundaryPoint {
+    /// Level, percent of nominal.
+    pub level_pct: f64,
+    /// The longest duration found to ride through at every phase, seconds: the lower end
+    /// of the final bracket (a duration actually simulated). `None` if it trips at the
+    /// shortest duration searched.
+    pub longest_ride_through_s: Option<f64>,
+    /// The shortest duration found to trip (or chatter) at some phase, seconds: the upper
+    /// end of the bracket. `None` if it rides through the longest duration searched.
+    pub shortest_trip_s: Option<f64>,
+    /// How the search ended.
+    pub status: DurationSearch,
+    /// Simulated events the search took (each phase counts).
+    pub runs: usize,
+}
+
+/// The resolution of the duration search: 1% of the duration or 0.5 ms, whichever is
+/// larger.
+pub fn duration_resolution_s(duration_s: f64) -> f64 {
+    (0.01 * duration_s).max(0.5e-3)
+}
+
+/// Whether any phase trips (or chatters) at (`level_pct`, `duration_s`); a point that
+/// cannot be simulated is an error, never a ride-through.
+fn trips_anywhere(
+    settled: &Settled,
+    circuit: &Circuit,
+    level_pct: f64,
+    duration_s: f64,
+    phases: &[f64],
+    edge_s: f64,
+) -> Result<bool, String> {
+    let points: Vec<Point> = phases
+        .par_iter()
+        .map(|&p| run_point(settled, circuit, level_pct, duration_s, p, edge_s))
+        .collect();
+    if let Some(p) = points.iter().find(|p| p.outcome == Outcome::Failed) {
+        return Err(format!(
+            "{}% for {} s at {} deg: {}",
+            level_pct,
+            duration_s,
+            p.phase_deg,
+            p.failure.as_deref().unwrap_or("failed")
+        ));
+    }
+    Ok(points
+        .iter()
+        .any(|p| matches!(p.outcome, Outcome::Trips | Outcome::Chatters)))
+}
+
+/// Finds, by bisection in duration within `[shortest_s, longest_s]`, the longest event at
+/// `level_pct` that the protector rides through at every phase, to
+/// [`duration_resolution_s`]. `known` are map cells already simulated at this level over
+/// the same phases (worst case over phases); they narrow the first bracket. A longer event
+/// at the same level is taken to be at least as severe. The bisection is geometric (the
+/// durations of a map span decades), ending when the bracket is within the resolution.
+pub fn refine_duration_boundary(
+    settled: &Settled,
+    circuit: &Circuit,
+    level_pct: f64,
+    phases: &[f64],
+    (shortest_s, longest_s): (f64, f64),
+    known: &[Cell],
+    edge_s: f64,
+) -> Result<DurationBoundaryPoint, String> {
+    let mut runs = 0;
+    let mut test = |d: f64| {
+        runs += phases.len();
+        trips_anywhere(settled, circuit, level_pct, d, phases, edge_s)
+    };
+    let mine: Vec<&Cell> = known
+        .iter()
+        .filter(|c| c.level_pct == level_pct && c.outcome != Outcome::Failed)
+        .collect();
+    // The first bracket: the shortest known trip, and the longest known ride-through
+    // below it; the ends of the range are simulated when nothing is known there.
+    let mut trip = mine
+        .iter()
+        .filter(|c| matches!(c.outcome, Outcome::Trips | Outcome::Chatters))
+        .map(|c| c.duration_s)
+        .fold(f64::INFINITY, f64::min);
+    let mut ride = mine
+        .iter()
+        .filter(|c| c.outcome == Outcome::RidesThrough && c.duration_s < trip)
+        .map(|c| c.duration_s)
+        .fold(f64::NEG_INFINITY, f64::max);
+    if !trip.is_finite() {
+        if test(longest_s)? {
+            trip = longest_s;
+        } else {
+            return Ok(DurationBoundaryPoint {
+                level_pct,
+                longest_ride_through_s: Some(longest_s),
+                shortest_trip_s: None,
+                status: DurationSearch::RidesThroughAll,
+                runs,
+            });
+        }
+    }
+    if !ride.is_finite() {
+        if shortest_s < trip && !test(shortest_s)? {
+            ride = shortest_s;
+        } else {
+            return Ok(DurationBoundaryPoint {
+                level_pct,
+                longest_ride_through_s: None,
+                shortest_trip_s: Some(trip.min(shortest_s)),
+                status: DurationSearch::TripsAtAll,
+                runs,
+            });
+        }
+    }
+    while trip - ride > duration_resolution_s(ride) {
+        let mid = (ride * trip).sqrt().clamp(
+            ride + 0.25 * (trip - ride),
+            trip - 0.25 * (trip - ride),
+        );
+        if test(mid)? {
+            trip = mid;
+        } else {
+            ride = mid;
+        }
+    }
+    Ok(DurationBoundaryPoint {
+        level_pct,
+        longest_ride_through_s: Some(ride),
+        shortest_trip_s: Some(trip),
+        status: DurationSearch::Found,
+        runs,
+    })
+}
+
+/// Header of the duration boundary journal (`duration-boundary.csv`).
+pub const DURATION_BOUNDARY_HEADER: &str =
+    "level_pct,longest_ride_through_s,shortest_trip_s,status,runs";
+
+fn search_name(s: DurationSearch) -> &'static str {
+    match s {
+        DurationSearch::Found => "found",
+        DurationSearch::RidesThroughAll => "rides-through-all",
+        DurationSearch::TripsAtAll => "trips-at-all",
+    }
+}
+
+/// One line of the duration boundary journal.
+pub fn duration_boundary_line(b: &DurationBoundaryPoint) -> String {
+    format!(
+        "{},{},{},{},{}",
+        b.level_pct,
+        optional(b.longest_ride_through_s),
+        optional(b.shortest_trip_s),
+        search_name(b.status),
+        b.runs
+    )
+}
+
+/// Reads a duration boundary journal line.
+pub fn parse_duration_boundary_line(line: &str) -> Option<DurationBoundaryPoint> {
+    let f: Vec<&str> = line.split(',').collect();
+    if f.len() != 5 {
+        return None;
+    }
+    let status = [
+        DurationSearch::Found,
+        DurationSearch::RidesThroughAll,
+        DurationSearch::TripsAtAll,
+    ]
+    .into_iter()
+    .find(|s| search_name(*s) == f[3])?;
+    Some(DurationBoundaryPoint {
+        level_pct: f[0].parse().ok()?,
+        longest_ride_through_s: parse_optional(f[1])?,
+        shortest_trip_s: parse_optional(f[2])?,
+        status,
+        runs: f[4].parse().ok()?,
+    })
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -35,7 +35,16 @@ pub struct Plan {
     pub phases: Vec<f64>,
     /// Whether the static thresholds are part of the table.
     pub thresholds: bool,
+    /// Residual levels (percent) at which to find the longest dip ridden through.
+    pub ride_through_levels: Vec<f64>,
 }
+
+/// The residual levels of the default plan's longest ride-through: the IEC 61000-4-11
+/// class 3 dip levels and 80% (from memory: 0%, 40%, 70% and 80%).
+pub const DEFAULT_RIDE_THROUGH_LEVELS: [f64; 4] = [0.0, 40.0, 70.0, 80.0];
+/// The durations the longest ride-through is sought between: half a cycle (seconds at
+/// the supply frequency, set at run time) and this, seconds.
+pub const RIDE_THROUGH_LONGEST_S: f64 = 10.0;
 
 /// The swell levels and durations of the default plan (IEC 61000-4-11 sets no swell
 /// levels; these bracket the over-voltage trip of a 230 V guard and follow the dip
@@ -92,6 +101,7 @@ pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, String> {
         tests,
         phases: DEFAULT_PHASES.to_vec(),
         thresholds: true,
+        ride_through_levels: DEFAULT_RIDE_THROUGH_LEVELS.to_vec(),
     })
 }
 
@@ -117,6 +127,7 @@ struct PlanFile {
     title: Option<String>,
     phases: Option<toml::Spanned<Vec<f64>>>,
     thresholds: Option<bool>,
+    ride_through_levels: Option<toml::Spanned<Vec<f64>>>,
     #[serde(default)]
     test: Vec<PlanFileTest>,
 }
@@ -170,6 +181,21 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
         }
         None => DEFAULT_PHASES.to_vec(),
     };
+    let ride_through_levels = match &file.ride_through_levels {
+        Some(l) => {
+            let list = l.get_ref().clone();
+            if list.iter().any(|x| !(0.0..100.0).contains(x)) {
+                return Err(error(
+                    l.span().start,
+                    "ride_through_levels",
+                    "residual levels are percent from 0 to below 100, e.g. [0, 40, 70, 80]"
+                        .into(),
+                ));
+            }
+            list
+        }
+        None => DEFAULT_RIDE_THROUGH_LEVELS.to_vec(),
+    };
     if file.test.is_empty() && !file.thresholds.unwrap_or(true) {
         return Err(error(
             0,
@@ -209,6 +235,7 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
         tests,
         phases,
         thresholds: file.thresholds.unwrap_or(true),
+        ride_through_levels,
     })
 }
 
@@ -309,6 +336,11 @@ pub struct Table {
     /// The screening of the toleranced values before the corners, largest effect first
     /// (empty when the corners were not screened).
     pub screening: Vec<Effect>,
+    /// The longest dip ridden through at every phase, at each of the plan's levels
+    /// (nominal circuit), sought from half a cycle to `ride_through_longest_s`.
+    pub longest_ride_through: Vec<crate::sweep::DurationBoundaryPoint>,
+    /// The longest duration searched for the longest ride-through, seconds.
+    pub ride_through_longest_s: f64,
     /// Anything the reader must know: cases that could not be simulated.
     pub notes: Vec<String>,
 }
@@ -678,6 +710,33 @@ pub fn build(
     let rows =
         run_cases(&case_refs, plan, &|| progress.done()).map_err(|e| format!("{path}: {e}"))?;
     let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
+    // The longest ride-through per level, on the nominal circuit; the plan's own dips at
+    // those levels narrow the first bracket (only without tolerance cases, whose rows mix
+    // circuits).
+    let known: Vec<crate::sweep::Cell> = if case_refs.len() == 1 {
+        known_cells(plan, &rows, settled.frequency_hz)
+    } else {
+        Vec::new()
+    };
+    progress.stage("longest ride-through", plan.ride_through_levels.len());
+    let range = (0.5 / settled.frequency_hz, RIDE_THROUGH_LONGEST_S);
+    let longest_ride_through = plan
+        .ride_through_levels
+        .iter()
+        .map(|&level| {
+            let b = crate::sweep::refine_duration_boundary(
+                &settled,
+                circuit,
+                level,
+                &plan.phases,
+                range,
+                &known,
+                DEFAULT_EDGE_S,
+            );
+            progress.done();
+            b.map_err(|e| format!("{path}: longest ride-through: {e}"))
+        })
+        .collect::<Result<Vec<_>, String>>()?;
     let table = Table {
         circuit: circuit.title.clone(),
         plan: plan.title.clone(),
@@ -692,9 +751,69 @@ pub fn build(
         tolerance_cases: description,
         threshold_spread,
         screening,
+        longest_ride_through,
+        ride_through_longest_s: RIDE_THROUGH_LONGEST_S,
         notes,
     };
     Ok((table, settled))
+}
+
+/// The plan's one-step dips as map cells (worst case over the phases), for the longest
+/// ride-through search.
+fn known_cells(plan: &Plan, rows: &[Row], frequency_hz: f64) -> Vec<crate::sweep::Cell> {
+    use crate::sweep::{Cell, Outcome};
+    plan.tests
+        .iter()
+        .zip(rows)
+        .filter_map(|(t, r)| match t.profile.steps.as_slice() {
+            [Step::Dip { residual, duration }] => Some(Cell {
+                level_pct: residual * 100.0,
+                duration_s: duration.seconds(frequency_hz),
+                outcome: if !r.chattered_at_deg.is_empty() {
+                    Outcome::Chatters
+                } else if r.tripped_at_deg.is_empty() {
+                    Outcome::RidesThrough
+                } else {
+                    Outcome::Trips
+                },
+                trip_latency_ms: None,
+                restore_latency_ms: None,
+            }),
+            _ => None,
+        })
+        .collect()
+}
+
+/// The longest ride-through as rows: level, longest ridden through, shortest trip.
+fn ride_through_rows(table: &Table) -> Vec<[String; 3]> {
+    use crate::sweep::DurationSearch;
+    use crate::units::format_duration;
+    table
+        .longest_ride_through
+        .iter()
+        .map(|b| {
+            let (ride, trip) = match (b.status, b.longest_ride_through_s, b.shortest_trip_s) {
+                (DurationSearch::Found, Some(r), Some(t)) => {
+                    (format_duration(r), format_duration(t))
+                }
+                (DurationSearch::RidesThroughAll, Some(r), _) => (
+                    format!("at least {}", format_duration(r)),
+                    "none searched".into(),
+                ),
+                (_, _, Some(t)) => ("none".into(), format!("{} or less", format_duration(t))),
+                _ => ("-".into(), "-".into()),
+            };
+            [format!("{}%", b.level_pct), ride, trip]
+        })
+        .collect()
+}
+
+/// What the longest ride-through section shows.
+fn ride_through_text(table: &Table) -> String {
+    format!(
+        "The longest dip ridden through at every start phase, at each residual level (nominal          circuit): found by bisection in duration from half a cycle to {}, to 1% of the          duration or 0.5 ms, whichever is larger. The value given was simulated and rode          through; the next column is the shortest duration found to trip.",
+        crate::units::format_duration(table.ride_through_longest_s)
+    )
 }
 
 /// The spread of the static thresholds over tolerance cases, volts.
@@ -869,6 +988,18 @@ pub fn markdown(table: &Table) -> String {
             }
         }
     }
+    if !table.longest_ride_through.is_empty() {
+        let _ = writeln!(
+            out,
+            "\n## Longest ride-through\n\n{}\n",
+            ride_through_text(table)
+        );
+        let _ = writeln!(out, "| residual | longest ridden through | shortest trip |");
+        let _ = writeln!(out, "|---|---|---|");
+        for [level, ride, trip] in ride_through_rows(table) {
+            let _ = writeln!(out, "| {level} | {ride} | {trip} |");
+        }
+    }
     if let Some(spread) = &table.threshold_spread {
         let _ = writeln!(
             out,
@@ -1041,6 +1172,24 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
                 let _ = writeln!(out, "<p>{}</p>", escape(note));
             }
         }
+    }
+    if !table.longest_ride_through.is_empty() {
+        let _ = writeln!(
+            out,
+            "<h2>Longest ride-through</h2>\n<p>{}</p>\n<table>\n<tr><th>residual</th>\
+             <th>longest ridden through</th><th>shortest trip</th></tr>",
+            escape(&ride_through_text(table))
+        );
+        for [level, ride, trip] in ride_through_rows(table) {
+            let _ = writeln!(
+                out,
+                "<tr><td class=\"num\">{level}</td><td class=\"num\">{}</td>\
+                 <td class=\"num\">{}</td></tr>",
+                escape(&ride),
+                escape(&trip)
+            );
+        }
+        let _ = writeln!(out, "</table>");
     }
     if let Some(spread) = &table.threshold_spread {
         let _ = writeln!(

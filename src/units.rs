@@ -116,6 +116,23 @@ fn is_unit(text: &str, quantity: Quantity) -> bool {
         .any(|unit| unit.eq_ignore_ascii_case(text) || *unit == text)
 }
 
+/// A duration for people to read, to about four significant figures: `0.50 ms`,
+/// `545.6 ms`, `2.282 s`, `81.5 s`.
+pub fn format_duration(seconds: f64) -> String {
+    let ms = seconds * 1e3;
+    if !seconds.is_finite() {
+        format!("{seconds} s")
+    } else if ms.abs() < 10.0 {
+        format!("{ms:.2} ms")
+    } else if ms.abs() < 1000.0 {
+        format!("{ms:.1} ms")
+    } else if seconds.abs() < 10.0 {
+        format!("{seconds:.3} s")
+    } else {
+        format!("{seconds:.1} s")
+    }
+}
+
 /// Reads a value such as `4.7u`, `68k`, `10mH` or `230V`.
 ///
 /// ```
@@ -235,6 +252,14 @@ impl fmt::Display for Engineering {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn durations_read_well() {
+        assert_eq!(format_duration(0.0005), "0.50 ms");
+        assert_eq!(format_duration(0.5455594781168519), "545.6 ms");
+        assert_eq!(format_duration(2.2816), "2.282 s");
+        assert_eq!(format_duration(81.46), "81.5 s");
+    }
 
     #[test]
     fn prefixes_and_units() {
