@@ -1590,7 +1590,10 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
     }
     let known = sagtrip::sweep::cells(&points);
     let range = (
-        grid.durations_s.iter().copied().fold(f64::INFINITY, f64::min),
+        grid.durations_s
+            .iter()
+            .copied()
+            .fold(f64::INFINITY, f64::min),
         grid.durations_s.iter().copied().fold(0.0, f64::max),
     );
     for level in duration_todo {
@@ -1816,10 +1819,16 @@ fn report_sweep(
                     sagtrip::units::format_duration(trip)
                 ),
                 (DurationSearch::RidesThroughAll, Some(ride), _) => {
-                    format!("at least {} (the longest searched)", sagtrip::units::format_duration(ride))
+                    format!(
+                        "at least {} (the longest searched)",
+                        sagtrip::units::format_duration(ride)
+                    )
                 }
                 (_, _, Some(trip)) => {
-                    format!("none: trips at {} (the shortest searched)", sagtrip::units::format_duration(trip))
+                    format!(
+                        "none: trips at {} (the shortest searched)",
+                        sagtrip::units::format_duration(trip)
+                    )
                 }
                 _ => "-".into(),
             };

@@ -426,10 +426,9 @@ pub fn refine_duration_boundary(
         }
     }
     while trip - ride > duration_resolution_s(ride) {
-        let mid = (ride * trip).sqrt().clamp(
-            ride + 0.25 * (trip - ride),
-            trip - 0.25 * (trip - ride),
-        );
+        let mid = (ride * trip)
+            .sqrt()
+            .clamp(ride + 0.25 * (trip - ride), trip - 0.25 * (trip - ride));
         if test(mid)? {
             trip = mid;
         } else {

@@ -37,6 +37,8 @@ pub struct Plan {
     pub thresholds: bool,
     /// Residual levels (percent) at which to find the longest dip ridden through.
     pub ride_through_levels: Vec<f64>,
+    /// How the static thresholds are searched.
+    pub threshold_options: crate::thresholds::ThresholdOptions,
 }
 
 /// The residual levels of the default plan's longest ride-through: the IEC 61000-4-11
@@ -102,6 +104,7 @@ pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, String> {
         phases: DEFAULT_PHASES.to_vec(),
         thresholds: true,
         ride_through_levels: DEFAULT_RIDE_THROUGH_LEVELS.to_vec(),
+        threshold_options: Default::default(),
     })
 }
 
@@ -188,8 +191,7 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
                 return Err(error(
                     l.span().start,
                     "ride_through_levels",
-                    "residual levels are percent from 0 to below 100, e.g. [0, 40, 70, 80]"
-                        .into(),
+                    "residual levels are percent from 0 to below 100, e.g. [0, 40, 70, 80]".into(),
                 ));
             }
             list
@@ -236,6 +238,7 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
         phases,
         thresholds: file.thresholds.unwrap_or(true),
         ride_through_levels,
+        threshold_options: Default::default(),
     })
 }
 
@@ -335,7 +338,7 @@ pub struct Table {
     pub threshold_spread: Option<ThresholdSpread>,
     /// The screening of the toleranced values before the corners, largest effect first
     /// (empty when the corners were not screened).
-    pub screening: Vec<Effect>,
+    pub screening: Screening,
     /// The longest dip ridden through at every phase, at each of the plan's levels
     /// (nominal circuit), sought from half a cycle to `ride_through_longest_s`.
     pub longest_ride_through: Vec<crate::sweep::DurationBoundaryPoint>,
@@ -463,25 +466,25 @@ pub fn run_cases(
     Ok(rows)
 }
 
+/// A latency whose changes add up to less than this is as good as constant for
+/// screening, milliseconds (a tenth of a millisecond is the engine's agreement with
+/// independent checks; half a millisecond leaves room for the run-to-run grain).
+pub const LATENCY_FLOOR_MS: f64 = 0.5;
+
 /// The quantities a screening case is judged by: each test's typical trip and restore
-/// latency (its change measured against the larger of the two latencies, at least 1 ms)
-/// and the four static thresholds (against the nominal voltage).
-pub fn screening_quantities(
-    rows: &[Row],
-    thresholds: Option<&StaticThresholds>,
-    nominal_rms_v: f64,
-) -> Vec<Quantity> {
+/// latency (floor [`LATENCY_FLOOR_MS`]) and the four static thresholds (floor twice the
+/// search's resolution). [`crate::tolerance::rank`] puts them on one scale.
+pub fn screening_quantities(rows: &[Row], thresholds: Option<&StaticThresholds>) -> Vec<Quantity> {
     let mut out = Vec::new();
     for r in rows {
         for (what, spread) in [
             ("trip latency", r.trip_latency_ms),
             ("restore latency", r.restore_latency_ms),
         ] {
-            let value = spread.map(|s| s.typical);
             out.push(Quantity {
                 name: format!("{what} of {}", r.name),
-                value,
-                scale: value.map_or(1.0, |v| v.abs().max(1.0)),
+                value: spread.map(|s| s.typical),
+                floor: LATENCY_FLOOR_MS,
             });
         }
     }
@@ -495,7 +498,7 @@ pub fn screening_quantities(
             out.push(Quantity {
                 name: name.into(),
                 value: th.map(|x| x.volts),
-                scale: nominal_rms_v,
+                floor: 2.0 * t.resolution_v,
             });
         }
     }
@@ -513,7 +516,7 @@ pub fn screen_values(
     plan: &Plan,
     keep: usize,
     done: &(dyn Fn() + Sync),
-) -> Result<Vec<Effect>, String> {
+) -> Result<Screening, String> {
     let circuit = source.circuit;
     let mut first_phase = plan.clone();
     first_phase.phases.truncate(1);
@@ -526,16 +529,38 @@ pub fn screen_values(
             let rows = run_cases(&[(&s, &c)], &first_phase, done)?;
             let thresholds = if plan.thresholds {
                 // A failed search leaves the thresholds missing: their change counts fully.
-                let found = crate::thresholds::find(&s, &c, &Default::default()).ok();
+                let found = crate::thresholds::find(&s, &c, &plan.threshold_options).ok();
                 done();
                 found
             } else {
                 None
             };
-            Ok(screening_quantities(&rows, thresholds.as_ref(), s.rms))
+            Ok(screening_quantities(&rows, thresholds.as_ref()))
         })
         .collect::<Result<_, String>>()?;
-    Ok(crate::tolerance::rank(&circuit.tolerances, &measured, keep))
+    let effects = crate::tolerance::rank(&circuit.tolerances, &measured, keep);
+    let held: Vec<bool> = circuit
+        .tolerances
+        .iter()
+        .map(|t| effects.iter().any(|e| e.field == t.field && !e.kept))
+        .collect();
+    let allowance = crate::tolerance::held_allowance(&circuit.tolerances, &measured, &held)
+        .into_iter()
+        .filter(|(_, a)| *a > 0.0)
+        .collect();
+    Ok(Screening { effects, allowance })
+}
+
+/// What screening found: the ranked values, and what the values held as written could
+/// add to each quantity's spread (see [`crate::tolerance::held_allowance`]).
+#[derive(Clone, Debug, Default, Serialize)]
+pub struct Screening {
+    /// The values, largest effect first.
+    pub effects: Vec<Effect>,
+    /// Per quantity (name, amount in its unit): how far each side of its spread over the
+    /// corners may fall short because the held values stay as written. Only non-zero
+    /// amounts.
+    pub allowance: Vec<(String, f64)>,
 }
 
 /// The circuit of one tolerance case, powered up and settled.
@@ -635,7 +660,7 @@ pub fn build(
         }
     }
     let settled = crate::scenario::settle(circuit, options).map_err(|e| format!("{path}: {e}"))?;
-    let mut screening = Vec::new();
+    let mut screening = Screening::default();
     let (cases, description) = match cases {
         Cases::Nominal => (vec![tolerance::nominal()], String::new()),
         Cases::Corners { screen } => {
@@ -648,7 +673,12 @@ pub fn build(
                     .tolerances
                     .iter()
                     .enumerate()
-                    .filter(|(_, t)| screening.iter().any(|e| e.kept && e.field == t.field))
+                    .filter(|(_, t)| {
+                        screening
+                            .effects
+                            .iter()
+                            .any(|e| e.kept && e.field == t.field)
+                    })
                     .map(|(i, _)| i)
                     .collect();
                 let cases = tolerance::corners_of(&circuit.tolerances, &kept)
@@ -694,7 +724,7 @@ pub fn build(
     let mut all_thresholds: Vec<StaticThresholds> = Vec::new();
     if plan.thresholds {
         for (k, (s, c)) in case_refs.iter().enumerate() {
-            let found = crate::thresholds::find(s, c, &Default::default());
+            let found = crate::thresholds::find(s, c, &plan.threshold_options);
             progress.done();
             match found {
                 Ok(t) => all_thresholds.push(t),
@@ -811,7 +841,7 @@ fn ride_through_rows(table: &Table) -> Vec<[String; 3]> {
 /// What the longest ride-through section shows.
 fn ride_through_text(table: &Table) -> String {
     format!(
-        "The longest dip ridden through at every start phase, at each residual level (nominal          circuit): found by bisection in duration from half a cycle to {}, to 1% of the          duration or 0.5 ms, whichever is larger. The value given was simulated and rode          through; the next column is the shortest duration found to trip.",
+        "The longest dip ridden through at every start phase, at each residual level (nominal circuit): found by bisection in duration from half a cycle to {}, to 1% of the duration or 0.5 ms, whichever is larger. The value given was simulated and rode through; the next column is the shortest duration found to trip.",
         crate::units::format_duration(table.ride_through_longest_s)
     )
 }
@@ -1012,12 +1042,18 @@ pub fn markdown(table: &Table) -> String {
             let _ = writeln!(out, "| {name} | {lo} | {typ} | {hi} |");
         }
     }
-    if !table.screening.is_empty() {
+    if !table.screening.effects.is_empty() {
         let _ = writeln!(out, "\n## Tolerance screening\n\n{SCREENING_TEXT}\n");
-        let _ = writeln!(out, "| value | largest change | in | corners |");
-        let _ = writeln!(out, "|---|---|---|---|");
-        for [field, percent, quantity, kept] in screening_rows(&table.screening) {
-            let _ = writeln!(out, "| `{field}` | {percent} | {quantity} | {kept} |");
+        let _ = writeln!(out, "| value | share of a spread | change | in | corners |");
+        let _ = writeln!(out, "|---|---|---|---|---|");
+        for [field, percent, change, quantity, kept] in screening_rows(&table.screening.effects) {
+            let _ = writeln!(
+                out,
+                "| `{field}` | {percent} | {change} | {quantity} | {kept} |"
+            );
+        }
+        if let Some(text) = allowance_text(&table.screening) {
+            let _ = writeln!(out, "\n{text}");
         }
     }
     for note in &table.notes {
@@ -1028,19 +1064,62 @@ pub fn markdown(table: &Table) -> String {
 
 /// What the screening table shows.
 const SCREENING_TEXT: &str = "Each value alone at its lower and at its upper limit, the others \
-     as written, at the first start phase: the largest change between the two of any test's \
-     typical trip or restore latency (percent of the longer, at least 1 ms) or static \
-     threshold (percent of nominal); 100% where one limit trips and the other does not. The \
-     corners vary the values kept and leave the others as written.";
+     as written, at the first start phase. For every reported figure (each test's typical \
+     trip and restore latency, each static threshold) the changes of all values add up to \
+     an estimate of the figure's spread over the corners; a value's share of a spread is its \
+     change as a percentage of that sum, so thresholds in volts and latencies in \
+     milliseconds rank on one scale. Each value ranks by its largest share (100% where one \
+     limit trips and the other does not); figures whose changes add up to less than 0.5 ms \
+     or twice the threshold resolution do not rank. The corners vary the values kept and \
+     leave the others as written.";
 
-/// The screening as rows: field, change, quantity, kept.
-fn screening_rows(effects: &[Effect]) -> Vec<[String; 4]> {
+/// The unit of a screening quantity, from its name.
+fn quantity_unit(name: &str) -> &'static str {
+    if name.contains("latency") {
+        "ms"
+    } else {
+        "V"
+    }
+}
+
+/// What the values held as written could add to the spreads, as a sentence.
+fn allowance_text(screening: &Screening) -> Option<String> {
+    if screening.allowance.is_empty() {
+        return None;
+    }
+    let items: Vec<String> = screening
+        .allowance
+        .iter()
+        .map(|(name, a)| {
+            if a.is_finite() {
+                format!("{name} {a:.2} {}", quantity_unit(name))
+            } else {
+                format!("{name} (a held value decides whether it trips)")
+            }
+        })
+        .collect();
+    Some(format!(
+        "The values held as written could widen each side of these spreads by up to (half \
+         the sum of their changes, first order): {}.",
+        items.join("; ")
+    ))
+}
+
+/// The screening as rows: field, share, change, quantity, kept.
+fn screening_rows(effects: &[Effect]) -> Vec<[String; 5]> {
     effects
         .iter()
         .map(|e| {
             [
                 e.field.clone(),
-                format!("{:.2}%", e.percent),
+                format!("{:.1}%", e.percent),
+                if e.quantity.is_empty() {
+                    "-".into()
+                } else if e.change.is_finite() {
+                    format!("{:.2} {}", e.change, quantity_unit(&e.quantity))
+                } else {
+                    "trips at one limit only".into()
+                },
                 if e.quantity.is_empty() {
                     "-".into()
                 } else {
@@ -1207,23 +1286,27 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
         }
         let _ = writeln!(out, "</table>");
     }
-    if !table.screening.is_empty() {
+    if !table.screening.effects.is_empty() {
         let _ = writeln!(
             out,
             "<h2>Tolerance screening</h2>\n<p>{}</p>\n<table>\n<tr><th>value</th>\
-             <th>largest change</th><th>in</th><th>corners</th></tr>",
+             <th>share of a spread</th><th>change</th><th>in</th><th>corners</th></tr>",
             escape(SCREENING_TEXT)
         );
-        for [field, percent, quantity, kept] in screening_rows(&table.screening) {
+        for [field, percent, change, quantity, kept] in screening_rows(&table.screening.effects) {
             let _ = writeln!(
                 out,
-                "<tr><td><code>{}</code></td><td class=\"num\">{percent}</td><td>{}</td>\
-                 <td>{kept}</td></tr>",
+                "<tr><td><code>{}</code></td><td class=\"num\">{percent}</td>\
+                 <td class=\"num\">{}</td><td>{}</td><td>{kept}</td></tr>",
                 escape(&field),
+                escape(&change),
                 escape(&quantity)
             );
         }
         let _ = writeln!(out, "</table>");
+        if let Some(text) = allowance_text(&table.screening) {
+            let _ = writeln!(out, "<p>{}</p>", escape(&text));
+        }
     }
     for note in &table.notes {
         let _ = writeln!(out, "<p><strong>Note:</strong> {}</p>", escape(note));

@@ -86,8 +86,10 @@ pub struct Quantity {
     pub name: String,
     /// Its value; `None` where it does not exist (no trip, so no trip latency).
     pub value: Option<f64>,
-    /// A change is measured against this (the larger of the two cases' scales).
-    pub scale: f64,
+    /// The smallest spread of this quantity that counts, in its own unit (below it the
+    /// quantity is as good as constant: a bisection's resolution, a tenth of a
+    /// millisecond). A quantity whose changes add up to less is left out of the ranking.
+    pub floor: f64,
 }
 
 /// How much one toleranced value moves the results between its limits.
@@ -95,39 +97,75 @@ pub struct Quantity {
 pub struct Effect {
     /// The field, e.g. `part.r_bot.resistance`.
     pub field: String,
-    /// The largest change of any quantity between the value's two screening cases, percent
-    /// of that quantity's scale; 100 where a quantity exists in one case only.
+    /// The value's largest share of any quantity's estimated spread over the corners:
+    /// its change between its two screening cases, percent of the sum of every value's
+    /// change of that quantity (so every quantity, a threshold in volts or a latency in
+    /// milliseconds, is on one scale); 100 where a quantity exists in one case only.
     pub percent: f64,
+    /// That change, in the quantity's own unit (volts, milliseconds); infinite where the
+    /// quantity exists in one case only.
+    pub change: f64,
     /// The quantity that changed most.
     pub quantity: String,
     /// Whether the corners vary this value (otherwise it stays as written).
     pub kept: bool,
 }
 
-/// Ranks the values by their effect, largest first (file order among equals), and marks
-/// the first `keep` as kept. `measured[2 i]` and `measured[2 i + 1]` are the quantities of
-/// value i's low and high cases (from [`one_at_a_time`]), in the same order in every case.
+/// The change of each quantity between value i's low and high cases: `[i][k]`, in the
+/// quantity's unit; infinite where it exists in one case only.
+fn changes(tolerances: &[Tolerance], measured: &[Vec<Quantity>]) -> Vec<Vec<f64>> {
+    (0..tolerances.len())
+        .map(|i| {
+            let (low, high) = (&measured[2 * i], &measured[2 * i + 1]);
+            low.iter()
+                .zip(high)
+                .map(|(a, b)| match (a.value, b.value) {
+                    (Some(x), Some(y)) => (x - y).abs(),
+                    (None, None) => 0.0,
+                    _ => f64::INFINITY,
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// Ranks the values by their largest share of any quantity's estimated corner spread
+/// (see [`Effect::percent`]), largest first (file order among equals), and marks the first
+/// `keep` as kept. `measured[2 i]` and `measured[2 i + 1]` are the quantities of value i's
+/// low and high cases (from [`one_at_a_time`]), in the same order in every case.
+///
+/// One scale for every quantity: a value that moves a threshold by 4 V of an 8 V spread
+/// ranks with one that moves a latency by 20 ms of a 40 ms spread. The estimate adds the
+/// values' changes (a first-order, linear view of the corners).
 pub fn rank(tolerances: &[Tolerance], measured: &[Vec<Quantity>], keep: usize) -> Vec<Effect> {
+    let delta = changes(tolerances, measured);
+    let quantities = measured.first().map_or(0, Vec::len);
+    let totals: Vec<f64> = (0..quantities)
+        .map(|k| delta.iter().map(|d| d[k]).filter(|x| x.is_finite()).sum())
+        .collect();
     let mut effects: Vec<Effect> = tolerances
         .iter()
         .enumerate()
         .map(|(i, t)| {
-            let (low, high) = (&measured[2 * i], &measured[2 * i + 1]);
-            let mut best = (0.0, String::new());
-            for (a, b) in low.iter().zip(high) {
-                let change = match (a.value, b.value) {
-                    (Some(x), Some(y)) => 100.0 * (x - y).abs() / a.scale.max(b.scale),
-                    (None, None) => 0.0,
-                    _ => 100.0,
+            let mut best = (0.0, 0.0, String::new());
+            for k in 0..quantities {
+                let d = delta[i][k];
+                let share = if d.is_infinite() {
+                    1.0
+                } else if totals[k] < measured[0][k].floor || totals[k] == 0.0 {
+                    0.0
+                } else {
+                    d / totals[k]
                 };
-                if change > best.0 {
-                    best = (change, a.name.clone());
+                if share > best.0 {
+                    best = (share, d, measured[0][k].name.clone());
                 }
             }
             Effect {
                 field: t.field.clone(),
-                percent: best.0,
-                quantity: best.1,
+                percent: 100.0 * best.0,
+                change: best.1,
+                quantity: best.2,
                 kept: false,
             }
         })
@@ -137,6 +175,29 @@ pub fn rank(tolerances: &[Tolerance], measured: &[Vec<Quantity>], keep: usize) -
         e.kept = true;
     }
     effects
+}
+
+/// What the values held as written could add to each quantity's spread: for each
+/// quantity, half the sum of the held values' changes between their limits (the
+/// first-order amount by which the corners of the kept values may fall short on each
+/// side), with its name; infinite where a held value makes the quantity appear or vanish.
+/// `held[i]` says whether value i is held.
+pub fn held_allowance(
+    tolerances: &[Tolerance],
+    measured: &[Vec<Quantity>],
+    held: &[bool],
+) -> Vec<(String, f64)> {
+    let delta = changes(tolerances, measured);
+    let quantities = measured.first().map_or(0, Vec::len);
+    (0..quantities)
+        .map(|k| {
+            let sum: f64 = (0..tolerances.len())
+                .filter(|&i| held[i])
+                .map(|i| delta[i][k])
+                .sum();
+            (measured[0][k].name.clone(), 0.5 * sum)
+        })
+        .collect()
 }
 
 /// A small, fixed generator (SplitMix64): the same seed always gives the same samples.
@@ -211,7 +272,7 @@ mod tests {
         let q = |name: &str, value: Option<f64>| Quantity {
             name: name.into(),
             value,
-            scale: 100.0,
+            floor: 0.5,
         };
         let measured = vec![
             vec![q("x", Some(50.0)), q("y", Some(1.0))],
@@ -226,14 +287,25 @@ mod tests {
             .iter()
             .map(|e| (e.field.as_str(), e.percent, e.quantity.as_str(), e.kept))
             .collect();
+        // x moves by 1 (all of it from a), y by 8 (from b) and appears or vanishes with c:
+        // a has all of x's spread, as c has y's, and b all of y's finite spread.
         assert_eq!(
             order,
             [
-                ("c", 100.0, "y", true),
-                ("b", 8.0, "y", true),
-                ("a", 1.0, "x", false)
+                ("a", 100.0, "x", true),
+                ("b", 100.0, "y", true),
+                ("c", 100.0, "y", false)
             ]
         );
+        assert_eq!(ranked[1].change, 8.0);
+        // Holding a: x may fall short by half its change on each side.
+        let held = held_allowance(&t, &measured, &[true, false, false]);
+        assert_eq!(held, [("x".to_string(), 0.5), ("y".to_string(), 0.0)]);
+        // A spread under the floor does not rank: x moving by 0.4 ranks nobody on x.
+        let mut small = measured.clone();
+        small[1][0].value = Some(50.4);
+        let ranked = rank(&t, &small, 1);
+        assert_eq!(ranked.iter().find(|e| e.field == "a").unwrap().percent, 0.0);
         let kept = corners_of(&t, &[1]).unwrap();
         assert_eq!(kept.len(), 3);
         assert!(kept[1..].iter().all(|c| c.values.len() == 1));

@@ -331,6 +331,39 @@ fn sweep_writes_the_map_and_its_tables() {
     }
 }
 
+#[test]
+fn sweep_reports_the_longest_ride_through_per_level() {
+    let dir = temp_path("sweep-duration-boundary");
+    let _ = std::fs::remove_dir_all(&dir);
+    let out = sagtrip_ok(&[
+        "sweep",
+        "--levels",
+        "0:80:80",
+        "--durations",
+        "1cyc:200ms",
+        "--duration-count",
+        "2",
+        "--phases",
+        "0",
+        "--quiet",
+        "--json",
+        "--out",
+        dir.to_str().unwrap(),
+    ]);
+    let json: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let list = json["duration_boundary"].as_array().unwrap();
+    assert_eq!(list.len(), 2, "{list:?}");
+    for b in list {
+        // Between the grid's one-cycle ride-through and its 200 ms trip.
+        let d = b["longest_ride_through_s"].as_f64().unwrap();
+        assert!(d >= 0.02 && d < 0.2, "{b}");
+        assert_eq!(b["status"], "found");
+    }
+    let csv = std::fs::read_to_string(dir.join("duration-boundary.csv")).unwrap();
+    assert_eq!(csv.lines().count(), 3, "{csv}");
+    assert!(csv.starts_with("level_pct,longest_ride_through_s"));
+}
+
 fn small_sweep(extra: &[&str]) -> Output {
     let mut args = vec![
         "sweep",

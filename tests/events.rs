@@ -483,7 +483,10 @@ fn replay_counts_from_the_point_on_wave_onset_as_run_does() {
         let (rt, mt) = (r.trip_latency_ms.unwrap(), m.trip_latency_ms.unwrap());
         assert!((rt - mt).abs() < 0.2, "{spec}: trip {rt} ms vs run {mt} ms");
         let (rr, mr) = (r.restore_latency_ms.unwrap(), m.restore_latency_ms.unwrap());
-        assert!((rr - mr).abs() < 0.2, "{spec}: restore {rr} ms vs run {mr} ms");
+        assert!(
+            (rr - mr).abs() < 0.2,
+            "{spec}: restore {rr} ms vs run {mr} ms"
+        );
     }
 }
 

@@ -175,3 +175,94 @@ fn the_boundary_of_a_peak_detector_matches_its_closed_form() {
         );
     }
 }
+
+#[test]
+fn the_longest_ride_through_agrees_with_a_dense_duration_grid() {
+    // A consistency check of the bisection in duration against plain grid points of the
+    // same simulator: an interruption (0 %) at two phases, 1 ms steps across the
+    // transition. The search must bracket the grid's transition and meet its resolution
+    // (1 % of the duration or 0.5 ms, the figure the datasheet needs).
+    use sagtrip::sweep::{duration_resolution_s, refine_duration_boundary, DurationSearch};
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let options = EventOptions {
+        restore_limit_s: Some(0.2),
+        ..EventOptions::default()
+    };
+    let settled = settle(&guard, &options).unwrap();
+    let phases = [0.0, 90.0];
+    let range = (0.01, 1.0);
+    let b = refine_duration_boundary(&settled, &guard, 0.0, &phases, range, &[], DEFAULT_EDGE_S)
+        .unwrap();
+    assert_eq!(b.status, DurationSearch::Found);
+    let (ride, trip) = (
+        b.longest_ride_through_s.unwrap(),
+        b.shortest_trip_s.unwrap(),
+    );
+    assert!(
+        trip > ride && trip - ride <= duration_resolution_s(ride),
+        "{b:?}"
+    );
+    let grid = Grid {
+        levels_pct: vec![0.0],
+        durations_s: (0..30)
+            .map(|k| ride - 0.015 + 0.001 * f64::from(k))
+            .collect(),
+        phases_deg: phases.to_vec(),
+    };
+    let map = cells(&run_grid(&settled, &guard, &grid, DEFAULT_EDGE_S, &|| {}));
+    for c in &map {
+        let trips = matches!(c.outcome, Outcome::Trips | Outcome::Chatters);
+        if c.duration_s <= ride {
+            assert!(!trips, "{c:?} trips below the longest ride-through {ride}");
+        }
+        if c.duration_s >= trip {
+            assert!(trips, "{c:?} rides through above the shortest trip {trip}");
+        }
+    }
+    // Known map cells narrow the bracket without changing the answer.
+    let coarse = cells(&run_grid(
+        &settled,
+        &guard,
+        &Grid {
+            levels_pct: vec![0.0],
+            durations_s: vec![0.01, 0.03, 0.1, 0.3, 1.0],
+            phases_deg: phases.to_vec(),
+        },
+        DEFAULT_EDGE_S,
+        &|| {},
+    ));
+    let narrowed = refine_duration_boundary(
+        &settled,
+        &guard,
+        0.0,
+        &phases,
+        range,
+        &coarse,
+        DEFAULT_EDGE_S,
+    )
+    .unwrap();
+    assert!(narrowed.runs < b.runs, "{} vs {}", narrowed.runs, b.runs);
+    let r = narrowed.longest_ride_through_s.unwrap();
+    assert!(
+        (r - ride).abs() <= duration_resolution_s(ride),
+        "{r} vs {ride}"
+    );
+    // Ends of the range: a shallow dip that never trips, and a level that trips at once.
+    let shallow =
+        refine_duration_boundary(&settled, &guard, 95.0, &phases, range, &[], DEFAULT_EDGE_S)
+            .unwrap();
+    assert_eq!(shallow.status, DurationSearch::RidesThroughAll);
+    assert_eq!(shallow.longest_ride_through_s, Some(1.0));
+    let early = refine_duration_boundary(
+        &settled,
+        &guard,
+        0.0,
+        &phases,
+        (0.2, 1.0),
+        &[],
+        DEFAULT_EDGE_S,
+    )
+    .unwrap();
+    assert_eq!(early.status, DurationSearch::TripsAtAll);
+    assert_eq!(early.longest_ride_through_s, None);
+}

@@ -214,6 +214,8 @@ fn screening_keeps_the_value_that_sets_the_thresholds() {
         tests: Vec::new(),
         phases: vec![0.0],
         thresholds: true,
+        ride_through_levels: Vec::new(),
+        threshold_options: Default::default(),
     };
     let options = EventOptions::default();
     let source = sagtrip::table::Source {
@@ -221,31 +223,122 @@ fn screening_keeps_the_value_that_sets_the_thresholds() {
         path: "guard",
         circuit: &guard,
     };
-    let effects = sagtrip::table::screen_values(source, &options, &plan, 1, &|| {}).unwrap();
+    let effects = sagtrip::table::screen_values(source, &options, &plan, 1, &|| {})
+        .unwrap()
+        .effects;
     assert_eq!(effects.len(), 2);
     assert_eq!(effects[0].field, "part.r_bot.resistance");
     assert!(effects[0].kept && !effects[1].kept);
     assert_eq!(effects[1].field, "part.load.resistance");
-    // Only the bisection's resolution (0.1 V of 230 V) may move with the load.
-    assert!(
-        effects[1].percent <= 100.0 * 0.1 / 230.0 + 1e-9,
-        "{effects:?}"
-    );
+    // Only the bisection's resolution (0.1 V) may move with the load.
+    assert!(effects[1].change <= 0.1 + 1e-9, "{effects:?}");
     // The largest change is in an over-voltage threshold (the highest voltages): between
-    // r_bot = 14.25k and 15.75k, from the nominal over-voltage trip.
+    // r_bot = 14.25k and 15.75k, from the nominal over-voltage trip. A consistency check:
+    // the nominal trip comes from the simulator, the divider rule gives its change.
     let settled = settle(&guard, &options).unwrap();
     let nominal = sagtrip::thresholds::find(&settled, &guard, &Default::default()).unwrap();
     let ov = nominal.over.trip.unwrap().volts;
     let ratio = |r_bot: f64| (68e3 + r_bot) / r_bot;
-    let hand = 100.0 * ov * (ratio(14.25e3) - ratio(15.75e3)) / ratio(15e3) / 230.0;
-    eprintln!("screened {:.2}%, hand {hand:.2}%", effects[0].percent);
+    let hand = ov * (ratio(14.25e3) - ratio(15.75e3)) / ratio(15e3);
+    eprintln!(
+        "screened {:.2} V, divider rule {hand:.2} V",
+        effects[0].change
+    );
     assert!(
         effects[0].quantity.starts_with("over-voltage"),
         "{effects:?}"
     );
     assert!(
-        (effects[0].percent - hand).abs() < 0.1 * hand,
-        "screened {:.2}%, hand {hand:.2}%",
-        effects[0].percent
+        (effects[0].change - hand).abs() < 0.1 * hand,
+        "screened {:.2} V, divider rule {hand:.2} V",
+        effects[0].change
     );
+}
+
+#[test]
+fn screening_ranks_thresholds_and_latencies_on_one_scale() {
+    // The tolerance example: c_sense ±20% moves the 40% dip's trip latency by tens of
+    // percent and the under-voltage trip through the ripple valley; dz_ref ±2%, r_top and
+    // r_bot ±1% set the thresholds (the divider rule and the zener, from memory). Every
+    // value moves some threshold by volts, so screening to two values cannot give the full
+    // corners' spread by itself: the table must say by how much each spread may fall short,
+    // and that allowance must cover the full corners (first order: within 1 V).
+    use sagtrip::table::{build, Cases, Source};
+    let path = "examples/guard-230v-tolerances.toml";
+    let text = std::fs::read_to_string(path).unwrap();
+    let guard = sagtrip::circuit_file::parse_circuit(&text, path).unwrap();
+    let mut plan = parse_plan(
+        "phases = [0]\nride_through_levels = []\n[[test]]\nname = \"dip\"\nevent = \"dip:40%:10cyc\"\n",
+        "p.toml",
+        50.0,
+    )
+    .unwrap();
+    plan.threshold_options = sagtrip::thresholds::ThresholdOptions {
+        resolution_v: 0.2,
+        hold_s: 1.0,
+        ramp_s: 2.0,
+        ..Default::default()
+    };
+    let source = Source {
+        text: &text,
+        path,
+        circuit: &guard,
+    };
+    let options = EventOptions::default();
+    let (screened, _) = build(
+        source,
+        &options,
+        &plan,
+        Cases::Corners { screen: Some(2) },
+        &(),
+    )
+    .unwrap();
+    let (full, _) = build(
+        source,
+        &options,
+        &plan,
+        Cases::Corners { screen: None },
+        &(),
+    )
+    .unwrap();
+    let effects = &screened.screening.effects;
+    let kept: Vec<&str> = effects
+        .iter()
+        .filter(|e| e.kept)
+        .map(|e| e.field.as_str())
+        .collect();
+    eprintln!("{effects:#?}\n{:?}", screened.screening.allowance);
+    // The zener sets every threshold and is the largest share of the thresholds' spread.
+    assert!(kept.contains(&"part.dz_ref.breakdown_voltage"), "{kept:?}");
+    let (s, f) = (
+        screened.threshold_spread.unwrap(),
+        full.threshold_spread.unwrap(),
+    );
+    let allowance = |name: &str| {
+        screened
+            .screening
+            .allowance
+            .iter()
+            .find(|(n, _)| n == name)
+            .map_or(0.0, |(_, a)| *a)
+    };
+    for (name, a, b) in [
+        ("under-voltage trip", s.under_trip_v, f.under_trip_v),
+        ("over-voltage trip", s.over_trip_v, f.over_trip_v),
+        ("under-voltage reset", s.under_reset_v, f.under_reset_v),
+        ("over-voltage reset", s.over_reset_v, f.over_reset_v),
+    ] {
+        let (a, b, w) = (a.unwrap(), b.unwrap(), allowance(name));
+        eprintln!("{name}: screened {a:?} ± {w:.2}, full {b:?}");
+        assert!(
+            a.min - w <= b.min + 1.0 && a.max + w >= b.max - 1.0,
+            "{name}"
+        );
+        // And the allowance is not a blanket: it stays within 1 V of the shortfall.
+        let shortfall = (a.min - b.min).max(b.max - a.max).max(0.0);
+        assert!(
+            w <= shortfall + 1.0,
+            "{name}: allowance {w} for {shortfall}"
+        );
+    }
 }
