@@ -128,7 +128,9 @@ struct Figure {
 }
 
 fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
-    let t = &run.trace;
+    // Skipped steady-state cycles are drawn as the cycle they repeat.
+    let expanded = run.trace.expanded();
+    let t = &expanded;
     let time_ms: Vec<f64> = t.time.iter().map(|x| (x - run.onset_s) * 1e3).collect();
     let series = |probe: &Probe| -> Option<Vec<(f64, f64)>> {
         t.column(probe).map(|c| decimate(&time_ms, c, 3000))

@@ -122,6 +122,22 @@ pub struct Trace {
     pub events: Vec<DiscreteEvent>,
     /// Rows closer together than this are skipped (0 keeps every step), seconds.
     pub min_interval_s: f64,
+    /// Whole cycles skipped in a periodic steady state, in time order: the recorded rows
+    /// stop at a skip and resume after it; [`Trace::rows`] fills the gap with the repeated
+    /// cycle.
+    pub skips: Vec<Skip>,
+}
+
+/// Whole cycles a run skipped in a periodic steady state: the cycle that ended at `at_s`
+/// repeats `cycles` times.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Skip {
+    /// The end of the last simulated cycle before the skip, seconds.
+    pub at_s: f64,
+    /// The cycle's length, seconds.
+    pub period_s: f64,
+    /// How many whole cycles were skipped.
+    pub cycles: usize,
 }
 
 impl Trace {
@@ -148,6 +164,67 @@ impl Trace {
         }
     }
 
+    /// Notes that `cycles` whole cycles of length `period_s` were skipped at `at_s` (the
+    /// last recorded cycle repeats over them).
+    pub fn note_skip(&mut self, at_s: f64, period_s: f64, cycles: usize) {
+        if cycles > 0 {
+            self.skips.push(Skip {
+                at_s,
+                period_s,
+                cycles,
+            });
+        }
+    }
+
+    /// Every row in time order, the skipped cycles included: (time, index of the recorded
+    /// row whose values it carries). A skipped cycle repeats the rows of the cycle before
+    /// the skip, shifted by whole periods.
+    pub fn rows(&self) -> Vec<(f64, usize)> {
+        let mut out = Vec::with_capacity(self.time.len());
+        let mut skips = self.skips.iter().peekable();
+        for (row, &t) in self.time.iter().enumerate() {
+            while let Some(skip) = skips.next_if(|s| s.at_s < t) {
+                self.repeat(skip, &mut out);
+            }
+            out.push((t, row));
+        }
+        for skip in skips {
+            self.repeat(skip, &mut out);
+        }
+        out
+    }
+
+    fn repeat(&self, skip: &Skip, out: &mut Vec<(f64, usize)>) {
+        let from = self
+            .time
+            .partition_point(|&t| t <= skip.at_s - skip.period_s + 1e-12);
+        let to = self.time.partition_point(|&t| t <= skip.at_s + 1e-12);
+        for k in 1..=skip.cycles {
+            let shift = k as f64 * skip.period_s;
+            out.extend((from..to).map(|row| (self.time[row] + shift, row)));
+        }
+    }
+
+    /// A copy with the skipped cycles filled in (see [`Trace::rows`]) and no skips left.
+    pub fn expanded(&self) -> Trace {
+        if self.skips.is_empty() {
+            return self.clone();
+        }
+        let rows = self.rows();
+        Trace {
+            probes: self.probes.clone(),
+            time: rows.iter().map(|r| r.0).collect(),
+            columns: self
+                .columns
+                .iter()
+                .map(|c| rows.iter().map(|r| c[r.1]).collect())
+                .collect(),
+            events: self.events.clone(),
+            min_interval_s: self.min_interval_s,
+            skips: Vec::new(),
+        }
+    }
+
     /// Index of the probe's column, if recorded.
     pub fn column(&self, probe: &Probe) -> Option<&[f64]> {
         self.probes
@@ -156,14 +233,16 @@ impl Trace {
             .map(|i| self.columns[i].as_slice())
     }
 
-    /// Writes the trace as CSV: `time_s` then one column per probe.
+    /// Writes the trace as CSV: `time_s` then one column per probe. Skipped steady-state
+    /// cycles are written as the repeated cycle (see [`Trace::rows`]), so the file has no
+    /// hole.
     pub fn write_csv<W: Write>(&self, circuit: &Circuit, mut out: W) -> io::Result<()> {
         write!(out, "time_s")?;
         for p in &self.probes {
             write!(out, ",{}", p.label(circuit))?;
         }
         writeln!(out)?;
-        for (row, t) in self.time.iter().enumerate() {
+        for (t, row) in self.rows() {
             write!(out, "{t:.9e}")?;
             for column in &self.columns {
                 write!(out, ",{:.9e}", column[row])?;

@@ -541,6 +541,7 @@ impl Settled {
                         let stretch_end = (onset_s + end).min(event_end_s);
                         let cycles = ((stretch_end - state.time) / period).floor() - 1.0;
                         if cycles >= 1.0 {
+                            trace.note_skip(state.time, period, cycles as usize);
                             state.skip_ahead(cycles * period);
                             boundary += cycles * period;
                         }

@@ -603,3 +603,38 @@ fn a_run_cut_by_the_restore_limit_reports_no_restore_latency() {
     assert_eq!(run.measurements.restore_latency_ms, None);
     assert_eq!(run.restore_limit_s, 0.3);
 }
+
+#[test]
+fn skipped_steady_cycles_are_filled_in_traces_and_plots() {
+    // A 1 s swell to 120 %: most of it is skipped as periodic steady state. The trace must
+    // have no hole there, and the supply it shows must be the source's own sine (analytic:
+    // 1.2 x 230 V x sqrt 2, 50 Hz, phase 0 from t = 0) within 0.5 V.
+    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
+    let profile = parse_spec("swell:120%:1s", DEFAULT_EDGE_S).unwrap();
+    let run = run_event(&guard, &profile, &EventOptions::default()).unwrap();
+    assert!(run.stats.skipped_s > 0.5, "{}", run.stats.skipped_s);
+    assert!(!run.trace.skips.is_empty());
+    let full = run.trace.expanded();
+    let gap = full
+        .time
+        .windows(2)
+        .map(|w| w[1] - w[0])
+        .fold(0.0, f64::max);
+    assert!(gap <= 0.5e-3 + 1e-9, "largest gap {gap} s");
+    let mains = full.columns[0].as_slice();
+    let amplitude = 1.2 * 230.0 * std::f64::consts::SQRT_2;
+    let mut checked = 0;
+    for (t, v) in full.time.iter().zip(mains) {
+        if *t > run.onset_s + 0.1 && *t < run.event_end_s - 0.1 {
+            let expected = amplitude * (2.0 * std::f64::consts::PI * 50.0 * t).sin();
+            assert!((v - expected).abs() < 0.5, "at {t} s: {v} V, expected {expected} V");
+            checked += 1;
+        }
+    }
+    assert!(checked > 1000, "{checked}");
+    // The CSV writes the same rows.
+    let mut csv = Vec::new();
+    run.trace.write_csv(&guard, &mut csv).unwrap();
+    let lines = String::from_utf8(csv).unwrap().lines().count();
+    assert_eq!(lines, full.time.len() + 1);
+}
