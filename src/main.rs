@@ -2171,6 +2171,7 @@ fn detect_command(args: &DetectArgs) -> Result<String, String> {
             declared_v: declared,
             thresholds: &thresholds,
             trips: Vec::new(),
+            reconnections: Vec::new(),
             tripped: None,
         };
         write_plot(
@@ -2335,6 +2336,11 @@ fn replay_command(args: &ReplayArgs) -> Result<String, String> {
             declared_v: settled.rms,
             thresholds: &thresholds,
             trips: replay.trips.iter().map(|t| t.time_s).collect(),
+            reconnections: replay
+                .trips
+                .iter()
+                .filter_map(|t| t.reconnected_s)
+                .collect(),
             tripped: Some(replay.responses.iter().map(|r| r.tripped).collect()),
         };
         write_plot(

@@ -34,6 +34,13 @@ fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
         .map_err(|e| format!("plot: {e:?}"))
 }
 
+/// A title font size that fits `text` in `width` pixels (about 0.55 em per character),
+/// from 20 down to 11 points.
+fn title_size(text: &str, width: u32) -> u32 {
+    let chars = text.chars().count().max(1) as f64;
+    ((f64::from(width) - 40.0) / (0.55 * chars)).clamp(11.0, 20.0) as u32
+}
+
 /// Registers the embedded font as "sans-serif" (once per process).
 fn register_font() {
     FONT.call_once(|| {
@@ -264,8 +271,16 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
         let end = (run.event_end_s - run.onset_s) * 1e3;
         marks.push((
             end + restore,
-            format!("restore {restore:.1} ms after the end"),
+            format!("reconnected {restore:.1} ms after the end"),
         ));
+    } else {
+        // Reconnected for good before the event's end (a sequence): mark each reconnection.
+        for r in &m.reconnections {
+            marks.push((
+                r.since_onset_ms,
+                format!("reconnected at {:.1} ms", r.since_onset_ms),
+            ));
+        }
     }
     Figure {
         title: format!("{}: {} ({})", name, run.event, circuit.title),
@@ -283,7 +298,12 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
 fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Result<(), String> {
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
     root.fill(&WHITE).map_err(e)?;
-    let root = root.titled(&figure.title, ("sans-serif", 20)).map_err(e)?;
+    let root = root
+        .titled(
+            &figure.title,
+            ("sans-serif", title_size(&figure.title, SIZE.0)),
+        )
+        .map_err(e)?;
     let areas = root.split_evenly((figure.panels.len().max(1), 1));
     let (x0, x1) = figure.x_range;
     let last = figure.panels.len().saturating_sub(1);
@@ -309,8 +329,11 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
         if !y0.is_finite() || !y1.is_finite() {
             continue;
         }
+        // Room above the data for the legend (a fifth of the data range per entry), so
+        // that the legend never hides a trace.
         let pad = ((y1 - y0) * 0.08).max(1e-6);
-        let (y0, y1) = (y0 - pad, y1 + pad);
+        let entries = (lines.len() + levels.len()) as f64;
+        let (y0, y1) = (y0 - pad, y1 + pad + (y1 - y0 + 2.0 * pad) * 0.2 * entries);
         let mut chart = ChartBuilder::on(area)
             .margin(6)
             .caption(caption, ("sans-serif", 15))
@@ -340,7 +363,7 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
                     ShapeStyle::from(&BLACK.mix(0.5)).stroke_width(1),
                 ))
                 .map_err(e)?
-                .label(format!("{label} {y:.1}"))
+                .label(format!("{label} {y:.1} {unit}"))
                 .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], BLACK.mix(0.5)));
         }
         for (i, line) in lines.iter().enumerate() {
@@ -351,20 +374,25 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
                 .label(line.label.as_str())
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], color));
         }
-        if k == last {
-            for (x, label) in &figure.marks {
+        // The trip and reconnection marks: black (no trace is black), in every panel,
+        // labelled in the last one just right of the line and low, clear of the legend.
+        for (x, label) in &figure.marks {
+            chart
+                .draw_series(LineSeries::new(
+                    vec![(*x, y0), (*x, y1)],
+                    ShapeStyle::from(&BLACK.mix(0.75)).stroke_width(1),
+                ))
+                .map_err(e)?;
+            if k == last {
                 chart
-                    .draw_series(LineSeries::new(
-                        vec![(*x, y0), (*x, y1)],
-                        ShapeStyle::from(&RED).stroke_width(2),
+                    .draw_series(std::iter::once(
+                        EmptyElement::at((*x, y0 + 0.12 * (y1 - y0)))
+                            + Text::new(
+                                label.clone(),
+                                (4, -7),
+                                ("sans-serif", 13).into_font().color(&BLACK),
+                            ),
                     ))
-                    .map_err(e)?;
-                chart
-                    .draw_series(std::iter::once(Text::new(
-                        label.clone(),
-                        (*x, y1 - 0.1 * (y1 - y0)),
-                        ("sans-serif", 13).into_font().color(&RED),
-                    )))
                     .map_err(e)?;
             }
         }
@@ -468,7 +496,10 @@ fn draw_map<DB: DrawingBackend>(
     let y0 = y_edges.first().copied().unwrap_or(0.0).min(0.0) - 2.0;
     let mut chart = ChartBuilder::on(&root)
         .margin(12)
-        .caption(&map.title, ("sans-serif", 20))
+        .caption(
+            &map.title,
+            ("sans-serif", title_size(&map.title, MAP_SIZE.0)),
+        )
         .x_label_area_size(45)
         .y_label_area_size(60)
         .build_cartesian_2d((x0..x1).log_scale(), y0..y_top)
@@ -659,6 +690,8 @@ pub struct RecordingPlot<'a> {
     pub thresholds: &'a crate::detect::Thresholds,
     /// Trips of a replay, seconds into the recording (none for `detect`).
     pub trips: Vec<f64>,
+    /// Reconnections of a replay (the load path closing again), seconds into the recording.
+    pub reconnections: Vec<f64>,
     /// For each event, whether the protector tripped on it (replay), in event order.
     pub tripped: Option<Vec<bool>>,
 }
@@ -670,7 +703,9 @@ fn draw_recording<DB: DrawingBackend>(
     use crate::detect::EventKind as K;
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
     root.fill(&WHITE).map_err(e)?;
-    let root = root.titled(&p.title, ("sans-serif", 20)).map_err(e)?;
+    let root = root
+        .titled(&p.title, ("sans-serif", title_size(&p.title, 1100)))
+        .map_err(e)?;
     let (top, bottom) = root.split_vertically(430);
     // Urms(1/2) over time.
     let points: Vec<(f64, f64)> = p
@@ -752,6 +787,26 @@ fn draw_recording<DB: DrawingBackend>(
                 p.trips
                     .iter()
                     .map(|&t| TriangleMarker::new((t, y_max - 2.5), 6, RED.filled())),
+            )
+            .map_err(e)?;
+    }
+    if !p.reconnections.is_empty() {
+        let green = RGBColor(30, 130, 50);
+        chart
+            .draw_series(p.reconnections.iter().map(|&t| {
+                PathElement::new(
+                    vec![(t, 0.0), (t, y_max)],
+                    ShapeStyle::from(&green.mix(0.45)).stroke_width(1),
+                )
+            }))
+            .map_err(e)?
+            .label("protector reconnects")
+            .legend(move |(x, y)| Circle::new((x + 8, y), 4, green.filled()));
+        chart
+            .draw_series(
+                p.reconnections
+                    .iter()
+                    .map(|&t| Circle::new((t, y_max - 2.5), 5, green.filled())),
             )
             .map_err(e)?;
     }

@@ -5,7 +5,7 @@
 //! Convention: a point exactly on a curve counts as inside the tolerated (ride-through)
 //! region: the curve's own level and duration are what the equipment must withstand.
 
-/// Lower (no-interruption) boundary of the ITI (CBEMA) curve, 2000 revision (Information
+/// Lower curve of the ITI (CBEMA) curve (equipment works above it; the no-damage region lies below), 2000 revision (Information
 /// Technology Industry Council, for 120 V 60 Hz IT equipment): the equipment must ride
 /// through any level at or above this for the duration. 0% up to 20 ms, 70% up to 0.5 s,
 /// 80% up to 10 s, 90% beyond.
@@ -21,7 +21,7 @@ pub fn iti_lower_pct(duration_s: f64) -> f64 {
     }
 }
 
-/// Upper (no-damage) boundary of the ITI (CBEMA) curve, 2000 revision: 200% at 1 ms falling
+/// Upper curve of the ITI (CBEMA) curve (the prohibited region lies above it), 2000 revision: 200% at 1 ms falling
 /// to 140% at 3 ms (linear in log time between), 120% from 3 ms to 0.5 s, 110% beyond.
 /// Shorter than 1 ms the published curve rises toward 500% on an energy basis; it is not
 /// given here (no mains event of interest to a protector is that short).
@@ -71,7 +71,7 @@ pub fn curves(first_s: f64, last_s: f64) -> Vec<Curve> {
     let far = last_s.max(20.0);
     vec![
         Curve {
-            label: "ITI (CBEMA) 2000, no-interruption",
+            label: "ITI (CBEMA) 2000, lower curve (no-damage region below)",
             points: clip(vec![
                 (1e-4, 0.0),
                 (0.02, 0.0),
@@ -84,7 +84,7 @@ pub fn curves(first_s: f64, last_s: f64) -> Vec<Curve> {
             ]),
         },
         Curve {
-            label: "ITI (CBEMA) 2000, no-damage",
+            label: "ITI (CBEMA) 2000, upper curve (prohibited region above)",
             points: clip(vec![
                 (1e-3, 200.0),
                 (3e-3, 140.0),

@@ -273,6 +273,8 @@ fn event_plots_are_written_as_svg_and_png() {
         "relay coil current",
         "load path",
         "trip ",
+        "reconnected ",
+        "pick-up 22.0 mA",
         "time since onset (ms)",
     ] {
         assert!(text.contains(label), "{label}");
@@ -542,11 +544,24 @@ fn replay_reports_each_event_and_the_nuisance_trips() {
         "Urms(1/2)",
         "dip threshold 90%",
         "protector trips",
+        "protector reconnects",
         "event, protector tripped",
         "time into the recording (s)",
+        "upper curve (prohibited region above)",
     ] {
         assert!(text.contains(label), "{label}");
     }
+    // The latencies count from the point-on-wave onset, as `run` counts: the guard's
+    // 40% dip trips in 66 ms there (10 ms more than from the Urms(1/2) start).
+    assert_eq!(v["events"][0]["latencies_from"], "point-on-wave");
+    let trip = v["events"][0]["trip_latency_ms"].as_f64().unwrap();
+    let run = sagtrip_ok(&["run", "--event", "dip:40%:10cyc", "--json"]);
+    let run: serde_json::Value = serde_json::from_slice(&run.stdout).unwrap();
+    let expected = run["trip_latency_ms"].as_f64().unwrap();
+    assert!(
+        (trip - expected).abs() < 0.2,
+        "replay {trip} ms, run {expected} ms"
+    );
 }
 
 #[test]

@@ -627,7 +627,10 @@ fn skipped_steady_cycles_are_filled_in_traces_and_plots() {
     for (t, v) in full.time.iter().zip(mains) {
         if *t > run.onset_s + 0.1 && *t < run.event_end_s - 0.1 {
             let expected = amplitude * (2.0 * std::f64::consts::PI * 50.0 * t).sin();
-            assert!((v - expected).abs() < 0.5, "at {t} s: {v} V, expected {expected} V");
+            assert!(
+                (v - expected).abs() < 0.5,
+                "at {t} s: {v} V, expected {expected} V"
+            );
             checked += 1;
         }
     }
@@ -637,4 +640,17 @@ fn skipped_steady_cycles_are_filled_in_traces_and_plots() {
     run.trace.write_csv(&guard, &mut csv).unwrap();
     let lines = String::from_utf8(csv).unwrap().lines().count();
     assert_eq!(lines, full.time.len() + 1);
+}
+
+#[test]
+fn durations_print_to_four_decimals() {
+    // A bisected duration reads as people write it, not as every digit of its binary value.
+    assert_eq!(
+        Duration::Seconds(0.5455594781168519).to_string(),
+        "545.5595ms"
+    );
+    assert_eq!(Duration::Seconds(2.5).to_string(), "2.5s");
+    assert_eq!(Duration::Cycles(10.0).to_string(), "10cyc");
+    let profile = parse_spec("interrupt:545.5594781168519ms", DEFAULT_EDGE_S).unwrap();
+    assert_eq!(profile.spec(), "interrupt:545.5595ms");
 }

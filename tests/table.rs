@@ -128,7 +128,10 @@ event = "swell:130%:5cyc"
         .collect();
     alone.sort_by(f64::total_cmp);
     let spread = rows[0].trip_latency_ms.unwrap();
-    assert_eq!((spread.min, spread.typical, spread.max), (alone[0], alone[1], alone[2]));
+    assert_eq!(
+        (spread.min, spread.typical, spread.max),
+        (alone[0], alone[1], alone[2])
+    );
     // The phases differ: the spread is not one value three times.
     assert!(alone[2] > alone[0], "{alone:?}");
     // The same plan gives the same table.
