@@ -1580,7 +1580,8 @@ fn sweep(args: &SweepArgs) -> Result<String, String> {
                 range,
                 args.resolution,
                 DEFAULT_EDGE_S,
-            );
+            )
+            .map_err(|e| format!("{name}: {side} boundary at {}: {e}", short_duration(d)))?;
             if let Some(j) = &journal {
                 Journal::append(&j.boundary, &boundary_line(side, &b));
             }

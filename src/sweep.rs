@@ -237,26 +237,10 @@ pub struct BoundaryPoint {
     pub resolution_pct: f64,
 }
 
-/// Whether any of the phases trips (or chatters) at `level_pct`.
-fn trips_at(
-    settled: &Settled,
-    circuit: &Circuit,
-    level_pct: f64,
-    duration_s: f64,
-    phases: &[f64],
-    edge_s: f64,
-) -> bool {
-    phases.par_iter().any(|&p| {
-        matches!(
-            run_point(settled, circuit, level_pct, duration_s, p, edge_s).outcome,
-            Outcome::Trips | Outcome::Chatters
-        )
-    })
-}
-
 /// Finds, by bisection within `[low_pct, high_pct]`, the level where the response changes
 /// between trip and ride-through at duration `duration_s`, to within `resolution_pct`.
 /// For dips (`high_pct` <= 100) deeper (lower) levels trip; for swells higher levels trip.
+/// A point that cannot be simulated is an error, never taken for a ride-through.
 pub fn refine_boundary(
     settled: &Settled,
     circuit: &Circuit,
@@ -265,8 +249,9 @@ pub fn refine_boundary(
     (low_pct, high_pct): (f64, f64),
     resolution_pct: f64,
     edge_s: f64,
-) -> BoundaryPoint {
+) -> Result<BoundaryPoint, String> {
     let swell = low_pct >= 100.0;
+    let trips_at = |level: f64| trips_anywhere(settled, circuit, level, duration_s, phases, edge_s);
     // `tripping` is the end that trips, `riding` the end that rides through.
     let (mut tripping, mut riding) = if swell {
         (high_pct, low_pct)
@@ -278,24 +263,22 @@ pub fn refine_boundary(
         level_pct: None,
         resolution_pct,
     };
-    if !trips_at(settled, circuit, tripping, duration_s, phases, edge_s)
-        || trips_at(settled, circuit, riding, duration_s, phases, edge_s)
-    {
-        return none;
+    if !trips_at(tripping)? || trips_at(riding)? {
+        return Ok(none);
     }
     while (riding - tripping).abs() > 2.0 * resolution_pct {
         let mid = 0.5 * (riding + tripping);
-        if trips_at(settled, circuit, mid, duration_s, phases, edge_s) {
+        if trips_at(mid)? {
             tripping = mid;
         } else {
             riding = mid;
         }
     }
-    BoundaryPoint {
+    Ok(BoundaryPoint {
         duration_s,
         level_pct: Some(0.5 * (riding + tripping)),
         resolution_pct: 0.5 * (riding - tripping).abs(),
-    }
+    })
 }
 
 /// How the search for the longest ride-through at one level ended.

@@ -46,7 +46,8 @@ fn refined_boundary_agrees_with_a_dense_grid() {
         (0.0, 100.0),
         0.5,
         DEFAULT_EDGE_S,
-    );
+    )
+    .unwrap();
     let level = b.level_pct.unwrap();
     assert!(b.resolution_pct <= 0.5);
     assert!(
@@ -165,7 +166,8 @@ fn the_boundary_of_a_peak_detector_matches_its_closed_form() {
             (0.0, 100.0),
             0.25,
             DEFAULT_EDGE_S,
-        );
+        )
+        .unwrap();
         let level = b.level_pct.unwrap();
         // Within the bisection's resolution (0.25%) plus 0.25% for the near-ideal diode's
         // drop and leakage.
