@@ -360,15 +360,15 @@ mod tests {
 
     #[test]
     fn reconnections_between_disturbances_are_never_negative() {
-        // Two interruptions (1.0 .. 1.3 s and 1.8 .. 2.1 s) and a shallow variation
-        // (2.1 .. 4.1 s) that the protector accepts: it reconnects 0.6 s after the first
+        // Two interruptions (1.0 .. 1.3 s and 2.0 .. 2.3 s) and a shallow variation
+        // (2.3 .. 4.1 s) that the protector accepts: it reconnects 0.6 s after the first
         // interruption, trips on the second, and reconnects 0.7 s after it, while the
         // variation is still in progress. The event ends at 4.1 s, after the last
         // reconnection, so there is no restore latency from the event's end.
         let w = Window {
             event_end_s: 4.1,
             run_end_s: 6.0,
-            disturbances: vec![(1.0, 1.3), (1.8, 2.1), (2.1, 4.1)],
+            disturbances: vec![(1.0, 1.3), (2.0, 2.3), (2.3, 4.1)],
             ..window()
         };
         let events = [
@@ -376,10 +376,10 @@ mod tests {
             event(1.053, EventKind::NormallyOpenBroken),
             event(1.894, EventKind::PickUp),
             event(1.9, EventKind::NormallyOpenMade),
-            event(1.95, EventKind::DropOut),
-            event(1.953, EventKind::NormallyOpenBroken),
-            event(2.794, EventKind::PickUp),
-            event(2.8, EventKind::NormallyOpenMade),
+            event(2.05, EventKind::DropOut),
+            event(2.053, EventKind::NormallyOpenBroken),
+            event(2.994, EventKind::PickUp),
+            event(3.0, EventKind::NormallyOpenMade),
         ];
         let m = measure(&events, &w);
         assert_eq!(m.restore_latency_ms, None);
@@ -391,7 +391,7 @@ mod tests {
         assert_eq!(b.after_disturbance, Some(2));
         assert!((b.latency_ms.unwrap() - 700.0).abs() < 1e-9);
         assert!(b.during_disturbance);
-        assert!((b.since_onset_ms - 1800.0).abs() < 1e-9);
+        assert!((b.since_onset_ms - 2000.0).abs() < 1e-9);
         // Two openings for three disturbances: no chatter.
         assert!(!m.chatter);
     }
