@@ -358,7 +358,7 @@ fn sweep_reports_the_longest_ride_through_per_level() {
     for b in list {
         // Between the grid's one-cycle ride-through and its 200 ms trip.
         let d = b["longest_ride_through_s"].as_f64().unwrap();
-        assert!(d >= 0.02 && d < 0.2, "{b}");
+        assert!((0.02..0.2).contains(&d), "{b}");
         assert_eq!(b["status"], "found");
     }
     let csv = std::fs::read_to_string(dir.join("duration-boundary.csv")).unwrap();

@@ -1,0 +1,219 @@
+//! The command modules of the `sagtrip` binary: each translates its options into library
+//! calls and prints; the helpers they share.
+
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+use std::fmt::Write as _;
+use std::io::Write as _;
+
+use clap::{Args, ValueEnum};
+
+use sagtrip::builtin;
+use sagtrip::circuit::{Circuit, PartSpec};
+use sagtrip::circuit_file::parse_circuit;
+use sagtrip::engine::{Settings, Simulator, Start};
+use sagtrip::output::write_atomic;
+use sagtrip::probe::{Probe, Trace};
+use sagtrip::profile::{iec_presets, resolve, DEFAULT_EDGE_S};
+use sagtrip::scenario::{find_mains, run_event, EventOptions};
+use sagtrip::summary::{relay_timelines, settled_values};
+use sagtrip::units::{parse_value, Engineering, Quantity};
+
+/// Appends a line to a report string (writing to a String cannot fail).
+macro_rules! say {
+    ($out:expr) => {
+        let _ = writeln!($out);
+    };
+    ($out:expr, $($arg:tt)*) => {
+        let _ = writeln!($out, $($arg)*);
+    };
+}
+
+pub(crate) const SAFETY: &str = "\
+SAFETY: mains voltage can kill. sagtrip simulates a circuit; it does not replace testing \
+a real unit, local electrical codes, or the judgement of a licensed practitioner.";
+
+/// How long power-up and restoration may take before a run gives up.
+#[derive(Args)]
+pub(crate) struct LimitArgs {
+    /// Longest power-up before events, e.g. 30s or 120s: the load must be connected by then
+    /// (default: 10 s, or five times the circuit's longest RC time constant if longer).
+    #[arg(long)]
+    power_up_limit: Option<String>,
+    /// Longest run after an event's end waiting for the load to reconnect and the circuit
+    /// to settle (default as for --power-up-limit).
+    #[arg(long)]
+    restore_limit: Option<String>,
+}
+
+impl LimitArgs {
+    /// Event options with these limits and the given nominal supply.
+    fn options(&self, nominal: Option<&str>) -> Result<EventOptions, String> {
+        Ok(EventOptions {
+            nominal: nominal.map(nominal_option).transpose()?,
+            settle_limit_s: time_option(&self.power_up_limit, "power-up-limit")?,
+            restore_limit_s: time_option(&self.restore_limit, "restore-limit")?,
+            ..EventOptions::default()
+        })
+    }
+}
+
+/// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
+/// to report it under.
+pub(crate) fn load_circuit(path: Option<&Path>) -> Result<(Circuit, String), String> {
+    load_circuit_and_text(path).map(|(circuit, name, _)| (circuit, name))
+}
+
+/// As [`load_circuit`], also returning the file's text (to build tolerance cases from).
+pub(crate) fn load_circuit_and_text(
+    path: Option<&Path>,
+) -> Result<(Circuit, String, String), String> {
+    let (text, name) = match path {
+        Some(path) => (
+            std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?,
+            path.display().to_string(),
+        ),
+        None => (
+            builtin::REFERENCE_GUARD.to_string(),
+            builtin::REFERENCE_GUARD_NAME.to_string(),
+        ),
+    };
+    let circuit = parse_circuit(&text, &name).map_err(|e| e.to_string())?;
+    Ok((circuit, name, text))
+}
+
+pub(crate) fn time_option(text: &Option<String>, name: &str) -> Result<Option<f64>, String> {
+    text.as_deref()
+        .map(|t| {
+            parse_value(t, Quantity::Time)
+                .map_err(|e| format!("--{name}: {e}"))
+                .and_then(|v| {
+                    if v > 0.0 {
+                        Ok(v)
+                    } else {
+                        Err(format!("--{name} must be positive, got {t}"))
+                    }
+                })
+        })
+        .transpose()
+}
+
+/// Reads `--nominal 230V/50Hz`.
+pub(crate) fn nominal_option(text: &str) -> Result<(f64, f64), String> {
+    let (v, f) = text
+        .split_once('/')
+        .ok_or_else(|| format!("--nominal {text}: expected VOLTS/HERTZ, e.g. 230V/50Hz"))?;
+    let v = parse_value(v, Quantity::Voltage).map_err(|e| format!("--nominal {text}: {e}"))?;
+    let f = parse_value(f, Quantity::Frequency).map_err(|e| format!("--nominal {text}: {e}"))?;
+    if v <= 0.0 || f <= 0.0 {
+        return Err(format!("--nominal {text}: both values must be positive"));
+    }
+    Ok((v, f))
+}
+
+/// Reads a duration option such as `10cyc` or `200ms` in seconds at `frequency_hz`.
+pub(crate) fn duration_option(text: &str, name: &str, frequency_hz: f64) -> Result<f64, String> {
+    let text = text.trim();
+    let seconds = if let Some(n) = text.strip_suffix("cyc") {
+        n.trim()
+            .parse::<f64>()
+            .map_err(|_| format!("--{name} {text}: expected e.g. 10cyc or 200ms"))?
+            / frequency_hz
+    } else {
+        parse_value(text, Quantity::Time).map_err(|e| format!("--{name}: {e}"))?
+    };
+    if seconds.is_finite() && seconds >= 0.0 {
+        Ok(seconds)
+    } else {
+        Err(format!("--{name} {text}: must not be negative"))
+    }
+}
+
+/// Reads FROM:TO:STEP (percent) into the list of levels.
+pub(crate) fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
+    let parts: Vec<f64> = text
+        .split(':')
+        .map(|p| p.trim().trim_end_matches('%').parse::<f64>())
+        .collect::<Result<_, _>>()
+        .map_err(|_| format!("--{name} {text}: expected FROM:TO:STEP in percent, e.g. 0:90:10"))?;
+    let [from, to, step] = parts.as_slice() else {
+        return Err(format!(
+            "--{name} {text}: expected FROM:TO:STEP in percent, e.g. 0:90:10"
+        ));
+    };
+    if *step <= 0.0 || to < from || *from < 0.0 {
+        return Err(format!(
+            "--{name} {text}: need 0 <= FROM <= TO and STEP > 0"
+        ));
+    }
+    let count = ((to - from) / step + 1e-9).floor() as usize + 1;
+    Ok((0..count).map(|k| from + step * k as f64).collect())
+}
+
+/// Writes a plot as SVG or PNG by the file's extension, whole or not at all.
+pub(crate) fn write_plot(
+    path: &Path,
+    png: impl FnOnce(&Path) -> Result<(), String>,
+    svg: impl FnOnce() -> Result<String, String>,
+) -> Result<(), String> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("png") => {
+            let temp = path.with_extension("png.partial.png");
+            png(&temp)
+                .and_then(|()| std::fs::rename(&temp, path).map_err(|e| e.to_string()))
+                .map_err(|e| {
+                    let _ = std::fs::remove_file(&temp);
+                    format!("cannot write plot {}: {e}", path.display())
+                })
+        }
+        Some("svg") => {
+            let text = svg()?;
+            write_atomic(path, |w| w.write_all(text.as_bytes()))
+                .map_err(|e| format!("cannot write plot {}: {e}", path.display()))
+        }
+        _ => check_plot_name(path),
+    }
+}
+
+pub(crate) fn short_duration(s: f64) -> String {
+    if s < 1.0 {
+        format!("{:.0}ms", s * 1e3)
+    } else {
+        format!("{s:.1}s")
+    }
+}
+
+/// `v` rounded to 9 significant digits, printed in its shortest form (no binary noise).
+pub(crate) fn significant(v: f64) -> f64 {
+    format!("{v:.8e}").parse().unwrap_or(v)
+}
+
+/// A JSON value as indented text.
+pub(crate) fn pretty_json(value: &serde_json::Value) -> String {
+    serde_json::to_string_pretty(value).unwrap_or_default()
+}
+
+/// Refuses a plot file name that is neither `.svg` nor `.png` (before any work is done).
+pub(crate) fn check_plot_name(path: &Path) -> Result<(), String> {
+    match path.extension().and_then(|e| e.to_str()) {
+        Some("svg" | "png") => Ok(()),
+        _ => Err(format!(
+            "--plot {}: the file name must end in .svg or .png",
+            path.display()
+        )),
+    }
+}
+
+pub(crate) mod check;
+pub(crate) mod detect;
+pub(crate) mod merge;
+pub(crate) mod presets;
+pub(crate) mod recording;
+pub(crate) mod replay;
+pub(crate) mod run;
+pub(crate) mod sweep;
+pub(crate) mod synth;
+pub(crate) mod table;
+pub(crate) mod thresholds;

@@ -1,0 +1,216 @@
+//! `sagtrip replay`: drive the protector with a recording.
+
+use super::recording::*;
+use super::*;
+
+#[derive(Args)]
+pub(crate) struct ReplayArgs {
+    #[command(flatten)]
+    input: RecordingInput,
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    circuit: Option<PathBuf>,
+    /// Declared supply, e.g. 230V/50Hz (default: the circuit's mains source).
+    #[arg(long)]
+    nominal: Option<String>,
+    /// Write the replayed waveforms (mains, rail, comparator outputs) to this CSV file.
+    #[arg(long)]
+    trace: Option<PathBuf>,
+    /// Draw Urms(1/2) with the events and the trips, and the events on the ITI curve, into
+    /// FILE.svg or FILE.png.
+    #[arg(long)]
+    plot: Option<PathBuf>,
+    /// Print the result as JSON.
+    #[arg(long)]
+    json: bool,
+    #[command(flatten)]
+    limits: LimitArgs,
+}
+
+pub(crate) fn replay_command(args: &ReplayArgs) -> Result<String, String> {
+    let mut out = String::new();
+    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let options = args.limits.options(args.nominal.as_deref())?;
+    let started = Instant::now();
+    let settled =
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+    let scaled = open_scaled(&args.input)?;
+    check_recording_frequency(
+        scaled.lead_frequency_hz,
+        settled.frequency_hz,
+        "the protector's supply",
+    )?;
+    let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
+    let probes = args.trace.as_ref().map(|_| {
+        let mut p = vec![Probe::Voltage {
+            node: circuit.node("line").unwrap_or(1),
+        }];
+        p.extend(sagtrip::plot::plot_probes(&circuit));
+        p.dedup();
+        p
+    });
+    let thresholds = thresholds_of(&args.input);
+    // A progress bar on the terminal (indicatif draws nothing when stderr is not one), in
+    // seconds of recording; its length is known for WAV files, whose header gives it.
+    let total_s = scaled.rest.expected_len.map(|n| n as f64 / rate);
+    let bar = match total_s {
+        Some(total) if !args.json => indicatif::ProgressBar::new(total.ceil() as u64),
+        Some(_) => indicatif::ProgressBar::hidden(),
+        None if !args.json => indicatif::ProgressBar::no_length(),
+        None => indicatif::ProgressBar::hidden(),
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(if total_s.is_some() {
+            "{bar:40} {pos}/{len} s of recording, {elapsed} elapsed, about {eta} left"
+        } else {
+            "{spinner} {pos} s of recording, {elapsed} elapsed"
+        })
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let replay = settled
+        .replay_with_progress(scaled.volts(), rate, thresholds.clone(), probes, &mut |s| {
+            bar.set_position(s as u64)
+        })
+        .map_err(|e| format!("{}: {e}", args.input.recording.display()));
+    bar.finish_and_clear();
+    let replay = replay?;
+    if let Some(path) = &args.plot {
+        let plot = sagtrip::plot::RecordingPlot {
+            title: format!(
+                "{} through {}",
+                args.input.recording.display(),
+                circuit.title
+            ),
+            detection: &replay.detection,
+            declared_v: settled.rms,
+            thresholds: &thresholds,
+            trips: replay.trips.iter().map(|t| t.time_s).collect(),
+            reconnections: replay
+                .trips
+                .iter()
+                .filter_map(|t| t.reconnected_s)
+                .collect(),
+            tripped: Some(replay.responses.iter().map(|r| r.tripped).collect()),
+        };
+        write_plot(
+            path,
+            |p| sagtrip::plot::recording_png(&plot, p),
+            || sagtrip::plot::recording_svg(&plot),
+        )?;
+    }
+    let wall = started.elapsed().as_secs_f64();
+    if let (Some(path), Some(trace)) = (&args.trace, &replay.trace) {
+        write_atomic(path, |w| trace.write_csv(&circuit, w))
+            .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
+    }
+    let tripped = replay.responses.iter().filter(|r| r.tripped).count();
+    if args.json {
+        let value = serde_json::json!({
+            "circuit": name,
+            "recording": args.input.recording.display().to_string(),
+            "format": description,
+            "scale": how,
+            "joined_at_s": replay.joined_at_s,
+            "duration_s": replay.duration_s,
+            "events": replay.responses,
+            "nuisance_trips": replay.nuisance_trips,
+            "trips": replay.trips,
+            "summary": {
+                "events": replay.responses.len(),
+                "events_tripped": tripped,
+                "events_ridden_through": replay.responses.len() - tripped,
+                "nuisance_trips": replay.nuisance_trips.len(),
+            },
+            "min_rail_v": replay.min_rail_v,
+            "stats": replay.stats,
+            "wall_time_s": wall,
+        });
+        say!(out, "{}", pretty_json(&value));
+        return Ok(out);
+    }
+    say!(out, "{name}: {}", circuit.title);
+    say!(
+        out,
+        "{}: {description}, {:.3} s; scale {how}; joined at {:.4} s",
+        args.input.recording.display(),
+        replay.duration_s,
+        replay.joined_at_s
+    );
+    if replay.responses.is_empty() {
+        say!(out, "\nno dips, swells or interruptions detected");
+    } else {
+        say!(
+            out,
+            "\n{:<13} {:>10} {:>10} {:>10} {:>8}  {:<8} {:>12} {:>12}",
+            "event",
+            "start (s)",
+            "onset (s)",
+            "duration",
+            "level",
+            "tripped",
+            "trip after",
+            "reconnected"
+        );
+        for r in &replay.responses {
+            let e = &r.event;
+            say!(
+                out,
+                "{:<13} {:>10.4} {:>10} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
+                e.kind.name(),
+                e.start_s,
+                e.wave_start_s.map_or("-".into(), |t| format!("{t:.4}")),
+                e.duration_s * 1e3,
+                e.level_pct,
+                match (r.tripped, r.chatter) {
+                    (_, true) => "chatters",
+                    (true, false) => "yes",
+                    (false, false) => "no",
+                },
+                r.trip_latency_ms
+                    .map_or("-".into(), |v| format!("{v:.1} ms")),
+                match (r.tripped, r.restore_latency_ms) {
+                    (_, Some(v)) => format!("{v:.1} ms"),
+                    (true, None) if r.reconnected_during_event => "during it".into(),
+                    (true, None) => "not by the end".into(),
+                    (false, None) => "-".into(),
+                },
+            );
+        }
+        say!(
+            out,
+            "(start: IEC 61000-4-30 Urms(1/2); onset: where the waveform departs from the cycle \
+             before. Trip and reconnection times count from the onset and the point-on-wave end, \
+             or from the Urms(1/2) start and end where the onset shows \"-\".)"
+        );
+    }
+    for t in &replay.nuisance_trips {
+        say!(
+            out,
+            "NUISANCE TRIP at {:.4} s with no detected event",
+            t.time_s
+        );
+    }
+    say!(
+        out,
+        "\n{} events: {} tripped, {} ridden through; {} nuisance trip{}; lowest rail {}",
+        replay.responses.len(),
+        tripped,
+        replay.responses.len() - tripped,
+        replay.nuisance_trips.len(),
+        if replay.nuisance_trips.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
+        replay
+            .min_rail_v
+            .map_or("-".into(), |v| format!("{v:.3} V"))
+    );
+    say!(
+        out,
+        "(trip and reconnection times count from the event's detected start and end)\n{:.2} s wall, {:.0}x real time",
+        wall,
+        replay.duration_s / wall.max(1e-9)
+    );
+    Ok(out)
+}

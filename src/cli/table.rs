@@ -1,0 +1,223 @@
+//! `sagtrip table`: the datasheet timing table.
+
+use super::*;
+
+#[derive(Args)]
+pub(crate) struct TableArgs {
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    circuit: Option<PathBuf>,
+    /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
+    #[arg(long)]
+    nominal: Option<String>,
+    /// IEC 61000-4-11 test class of the default plan (2 or 3).
+    #[arg(long, default_value_t = 3)]
+    class: u8,
+    /// A test plan file (TOML) instead of the default plan; see docs/table.md.
+    #[arg(long)]
+    plan: Option<PathBuf>,
+    /// Start phase angles in degrees, e.g. 0,90,180,270 (default: the plan's).
+    #[arg(long)]
+    phases: Option<String>,
+    /// Leave the static thresholds out.
+    #[arg(long)]
+    no_thresholds: bool,
+    /// Also write the table as CSV to this file.
+    #[arg(long)]
+    csv: Option<PathBuf>,
+    /// Also write the Markdown table to this file.
+    #[arg(long)]
+    markdown: Option<PathBuf>,
+    /// Also write a self-contained HTML report (the table, a trip map of dips 0..90% and
+    /// swells 110..150% from half a cycle to 10 s at 0 and 90 degrees, the threshold plot).
+    #[arg(long)]
+    html: Option<PathBuf>,
+    /// Print the table as JSON instead of Markdown.
+    #[arg(long)]
+    json: bool,
+    /// Also run every corner of the circuit's toleranced values; with more than 8 values,
+    /// the 8 with the largest effect found by screening (see --screen).
+    #[arg(long)]
+    corners: bool,
+    /// With --corners: screen the values first (each alone at its limits) and vary only the
+    /// K with the largest effect in the corners, the others as written (K from 1 to 8).
+    #[arg(long, value_name = "K")]
+    screen: Option<usize>,
+    /// Also run this many Monte Carlo samples of the toleranced values.
+    #[arg(long, value_name = "N")]
+    monte_carlo: Option<usize>,
+    /// Seed of the Monte Carlo samples (the same seed gives the same table).
+    #[arg(long, default_value_t = 1)]
+    seed: u64,
+    /// No progress bar.
+    #[arg(long)]
+    quiet: bool,
+    #[command(flatten)]
+    limits: LimitArgs,
+}
+
+/// The table's progress on one terminal bar, restarted at each stage.
+pub(crate) struct Bar(indicatif::ProgressBar);
+
+impl sagtrip::table::Progress for Bar {
+    fn stage(&self, name: &str, runs: usize) {
+        self.0.set_message(if name.is_empty() {
+            String::new()
+        } else {
+            format!("{name} ")
+        });
+        self.0.set_length(runs as u64);
+        self.0.set_position(0);
+    }
+
+    fn done(&self) {
+        self.0.inc(1);
+    }
+}
+
+pub(crate) fn table_command(args: &TableArgs) -> Result<String, String> {
+    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases, Progress};
+    let mut out = String::new();
+    let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
+    let options = args.limits.options(args.nominal.as_deref())?;
+    // The plan first: a mistake in it is reported before any simulation.
+    let frequency_hint = options
+        .nominal
+        .map(|(_, f)| f)
+        .or_else(|| {
+            sagtrip::scenario::find_mains(&circuit, None)
+                .ok()
+                .map(|m| m.frequency_hz)
+        })
+        .unwrap_or(50.0);
+    let mut plan = match &args.plan {
+        Some(path) => {
+            let text = std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read plan {}: {e}", path.display()))?;
+            parse_plan(&text, &path.display().to_string(), frequency_hint)
+                .map_err(|e| e.to_string())?
+        }
+        None => default_plan(args.class, frequency_hint)?,
+    };
+    if let Some(text) = &args.phases {
+        plan.phases = text
+            .split(',')
+            .map(|p| {
+                p.trim()
+                    .trim_end_matches("deg")
+                    .parse::<f64>()
+                    .ok()
+                    .filter(|x| x.is_finite())
+                    .ok_or_else(|| format!("--phases {text}: expected degrees, e.g. 0,90,180,270"))
+            })
+            .collect::<Result<_, _>>()?;
+    }
+    if args.no_thresholds {
+        plan.thresholds = false;
+    }
+    for path in [&args.csv, &args.markdown, &args.html]
+        .into_iter()
+        .flatten()
+    {
+        if path.as_os_str().is_empty() {
+            return Err("an output file name is empty".into());
+        }
+    }
+    let started = Instant::now();
+    let cases = match (args.corners, args.monte_carlo, args.screen) {
+        (true, Some(_), _) => return Err("give --corners or --monte-carlo, not both".into()),
+        (false, _, Some(_)) => return Err("--screen goes with --corners".into()),
+        (true, None, screen) => Cases::Corners { screen },
+        (false, Some(count), None) => Cases::MonteCarlo {
+            count,
+            seed: args.seed,
+        },
+        (false, None, None) => Cases::Nominal,
+    };
+    let bar = if args.quiet || args.json {
+        indicatif::ProgressBar::hidden()
+    } else {
+        indicatif::ProgressBar::new(0)
+    };
+    bar.set_style(
+        indicatif::ProgressStyle::with_template(
+            "{msg}{bar:40} {pos}/{len} runs, {elapsed} elapsed, about {eta} left",
+        )
+        .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let progress = Bar(bar);
+    let source = sagtrip::table::Source {
+        text: &text_of_circuit,
+        path: &name,
+        circuit: &circuit,
+    };
+    let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)?;
+    let bar = &progress.0;
+    let text = markdown(&table);
+    if let Some(path) = &args.csv {
+        write_atomic(path, |w| w.write_all(csv(&table).as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    if let Some(path) = &args.markdown {
+        write_atomic(path, |w| w.write_all(text.as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    if let Some(path) = &args.html {
+        // The report's trip map: a coarse grid (the sweep command refines it further).
+        let map_grid = sagtrip::sweep::Grid {
+            levels_pct: (0..10)
+                .map(|k| f64::from(k) * 10.0)
+                .chain([110.0, 120.0, 130.0, 150.0])
+                .collect(),
+            durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
+            phases_deg: vec![0.0, 90.0],
+        };
+        progress.stage("trip map", map_grid.points().len());
+        let points =
+            sagtrip::sweep::run_grid(&settled, &circuit, &map_grid, DEFAULT_EDGE_S, &|| {
+                bar.inc(1)
+            });
+        let map = sagtrip::sweep::cells(&points);
+        let map_svg = sagtrip::plot::map_svg(&sagtrip::plot::MapData {
+            title: format!("Trip map: {}", circuit.title),
+            cells: &map,
+            durations_s: &map_grid.durations_s,
+            levels_pct: &map_grid.levels_pct,
+            boundaries: Vec::new(),
+            duration_boundary: &table.longest_ride_through,
+            frequency_hz: settled.frequency_hz,
+        })?;
+        let mut figures: Vec<(String, String)> = vec![(
+            "Trip map: worst case over 0 and 90 degrees for each level and duration, with the \
+             reference ride-through curves (sagtrip sweep refines the boundary)"
+                .to_string(),
+            map_svg,
+        )];
+        if let Some(t) = &table.thresholds {
+            figures.push((
+                "Static thresholds: the trip voltages from normal supply and the reset \
+                 voltages after a trip"
+                    .to_string(),
+                sagtrip::plot::thresholds_svg(t, &format!("Static thresholds: {}", circuit.title))?,
+            ));
+        }
+        let refs: Vec<(&str, &str)> = figures
+            .iter()
+            .map(|(c, s)| (c.as_str(), s.as_str()))
+            .collect();
+        let page = sagtrip::table::html(&table, &refs);
+        write_atomic(path, |w| w.write_all(page.as_bytes()))
+            .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
+    }
+    bar.finish_and_clear();
+    let wall = started.elapsed().as_secs_f64();
+    if args.json {
+        let mut value = serde_json::to_value(&table).unwrap_or_default();
+        value["wall_time_s"] = serde_json::json!(wall);
+        say!(out, "{}", pretty_json(&value));
+        return Ok(out);
+    }
+    out.push_str(&text);
+    say!(out, "\n({name}; {wall:.1} s wall)");
+    Ok(out)
+}
