@@ -87,9 +87,9 @@ fn main() -> ExitCode {
             let _ = std::io::stdout().write_all(text.as_bytes());
             ExitCode::SUCCESS
         }
-        Err(message) => {
-            eprintln!("error: {}", message.trim_end());
-            ExitCode::FAILURE
+        Err(failure) => {
+            eprintln!("error: {}", failure.message().trim_end());
+            ExitCode::from(failure.code())
         }
     }
 }

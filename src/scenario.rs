@@ -39,7 +39,7 @@ pub enum ScenarioError {
     /// connected its load path (normally-open contact made with the armature picked up), or
     /// the circuit never repeated cycle after cycle. No event can be judged from there.
     #[error(
-        "{} within the power-up limit of {limit_s} s (raise it with --power-up-limit)",
+        "{} within the power-up limit of {limit_s} s",
         match relay {
             Some(r) => format!("relay `{r}` did not connect the load (pick up and make its normally-open contact)"),
             None => "the circuit did not settle (repeat cycle after cycle)".to_string(),

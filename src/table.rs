@@ -624,6 +624,21 @@ pub struct Source<'a> {
     pub circuit: &'a Circuit,
 }
 
+/// Why a table could not be built.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum TableError {
+    /// The request does not fit the circuit (tolerance cases asked of a circuit without
+    /// tolerances, a screening count out of range, too many values for corners).
+    #[error("{0}")]
+    Request(String),
+    /// The nominal circuit did not power up to its operating state.
+    #[error("{0}: {1}")]
+    Settle(String, crate::scenario::ScenarioError),
+    /// A run, a tolerance case or a threshold search failed.
+    #[error("{0}")]
+    Run(String),
+}
+
 /// Builds the whole table: settles the protector (and every tolerance case), screens the
 /// tolerances where asked, finds the static thresholds of every case and runs every test
 /// at every phase for every case. Returns the table and the settled nominal protector
@@ -637,7 +652,7 @@ pub fn build(
     plan: &Plan,
     cases: Cases,
     progress: &dyn Progress,
-) -> Result<(Table, Settled), String> {
+) -> Result<(Table, Settled), TableError> {
     use crate::tolerance::{self, MAX_CORNER_VALUES};
     let Source { path, circuit, .. } = source;
     // Mistakes in the request first, before any simulation.
@@ -648,18 +663,19 @@ pub fn build(
         Cases::MonteCarlo { .. } => Some("--monte-carlo"),
     };
     if let (Some(what), 0) = (asked, n_values) {
-        return Err(format!(
+        return Err(TableError::Request(format!(
             "{what}: {path} has no values with a tolerance (docs/circuit-format.md)"
-        ));
+        )));
     }
     if let Cases::Corners { screen: Some(k) } = cases {
         if k == 0 || k > MAX_CORNER_VALUES {
-            return Err(format!(
+            return Err(TableError::Request(format!(
                 "--screen {k}: keep from 1 to {MAX_CORNER_VALUES} values for the corners"
-            ));
+            )));
         }
     }
-    let settled = crate::scenario::settle(circuit, options).map_err(|e| format!("{path}: {e}"))?;
+    let settled = crate::scenario::settle(circuit, options)
+        .map_err(|e| TableError::Settle(path.to_string(), e))?;
     let mut screening = Screening::default();
     let (cases, description) = match cases {
         Cases::Nominal => (vec![tolerance::nominal()], String::new()),
@@ -668,7 +684,8 @@ pub fn build(
             if keep < n_values {
                 let per_case = plan.tests.len() + usize::from(plan.thresholds);
                 progress.stage("screening", 2 * n_values * per_case);
-                screening = screen_values(source, options, plan, keep, &|| progress.done())?;
+                screening = screen_values(source, options, plan, keep, &|| progress.done())
+                    .map_err(TableError::Run)?;
                 let kept: Vec<usize> = circuit
                     .tolerances
                     .iter()
@@ -682,7 +699,7 @@ pub fn build(
                     .map(|(i, _)| i)
                     .collect();
                 let cases = tolerance::corners_of(&circuit.tolerances, &kept)
-                    .map_err(|e| format!("--corners: {e}"))?;
+                    .map_err(|e| TableError::Request(format!("--corners: {e}")))?;
                 let description = format!(
                     "{} tolerance cases (nominal and every corner of the {keep} value{} kept \
                      by screening all {n_values}; the others as written)",
@@ -692,7 +709,7 @@ pub fn build(
                 (cases, description)
             } else {
                 let cases = tolerance::corners(&circuit.tolerances)
-                    .map_err(|e| format!("--corners: {e}"))?;
+                    .map_err(|e| TableError::Request(format!("--corners: {e}")))?;
                 let description = format!(
                     "{} tolerance cases (nominal and every corner of {n_values} values)",
                     cases.len()
@@ -713,7 +730,8 @@ pub fn build(
     let extra: Vec<(Circuit, Settled)> = cases[1..]
         .par_iter()
         .map(|case| settle_case(source, options, case))
-        .collect::<Result<_, String>>()?;
+        .collect::<Result<_, String>>()
+        .map_err(TableError::Run)?;
     let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
     case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
     let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
@@ -728,7 +746,9 @@ pub fn build(
             progress.done();
             match found {
                 Ok(t) => all_thresholds.push(t),
-                Err(e) if k == 0 => return Err(format!("{path}: thresholds: {e}")),
+                Err(e) if k == 0 => {
+                    return Err(TableError::Run(format!("{path}: thresholds: {e}")))
+                }
                 Err(e) => notes.push(format!(
                     "{}: the static thresholds could not be found ({e}); this case is left \
                      out of the threshold spread",
@@ -737,8 +757,8 @@ pub fn build(
             }
         }
     }
-    let rows =
-        run_cases(&case_refs, plan, &|| progress.done()).map_err(|e| format!("{path}: {e}"))?;
+    let rows = run_cases(&case_refs, plan, &|| progress.done())
+        .map_err(|e| TableError::Run(format!("{path}: {e}")))?;
     let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
     // The longest ride-through per level, on the nominal circuit; the plan's own dips at
     // those levels narrow the first bracket (only without tolerance cases, whose rows mix
@@ -766,7 +786,8 @@ pub fn build(
             progress.done();
             b.map_err(|e| format!("{path}: longest ride-through: {e}"))
         })
-        .collect::<Result<Vec<_>, String>>()?;
+        .collect::<Result<Vec<_>, String>>()
+        .map_err(TableError::Run)?;
     let table = Table {
         circuit: circuit.title.clone(),
         plan: plan.title.clone(),

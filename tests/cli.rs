@@ -817,3 +817,30 @@ fn detect_takes_the_declared_supply_from_the_recording() {
         "more than 5%",
     );
 }
+
+#[test]
+fn exit_codes_tell_input_mistakes_from_failed_runs() {
+    // 0 success, 1 a run that could not give an answer, 2 a mistake in the input
+    // (the README's table of exit codes).
+    assert_eq!(sagtrip(&["profiles"]).status.code(), Some(0));
+    assert_eq!(sagtrip(&["run", "--bogus"]).status.code(), Some(2));
+    let missing = sagtrip(&["run", "--circuit", "no-such-circuit.toml"]);
+    assert_eq!(missing.status.code(), Some(2));
+    assert_eq!(
+        sagtrip(&["sweep", "--levels", "abc"]).status.code(),
+        Some(2)
+    );
+    let text = sagtrip::builtin::REFERENCE_GUARD.replace("\"22mA\"", "\"40mA\"");
+    let path = temp_path("exit-never-connects.toml");
+    std::fs::write(&path, text).unwrap();
+    let never = sagtrip(&[
+        "run",
+        "--event",
+        "dip:40%:10cyc",
+        "--circuit",
+        path.to_str().unwrap(),
+        "--power-up-limit",
+        "1s",
+    ]);
+    assert_eq!(never.status.code(), Some(1));
+}

@@ -77,7 +77,7 @@ pub(crate) fn part_summary(spec: &PartSpec) -> String {
     }
 }
 
-pub(crate) fn check(path: Option<&Path>) -> Result<String, String> {
+pub(crate) fn check(path: Option<&Path>) -> Outcome {
     let mut out = String::new();
     let (circuit, name) = load_circuit(path)?;
     say!(out, "{name}: valid");

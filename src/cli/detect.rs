@@ -24,7 +24,7 @@ pub(crate) struct DetectArgs {
     json: bool,
 }
 
-pub(crate) fn detect_command(args: &DetectArgs) -> Result<String, String> {
+pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
     use sagtrip::detect::Detector;
     let mut out = String::new();
     let scaled = open_scaled(&args.input)?;

@@ -17,7 +17,7 @@ pub(crate) struct MergeArgs {
 }
 
 /// Joins the folders of a sharded sweep into one result.
-pub(crate) fn merge(args: &MergeArgs) -> Result<String, String> {
+pub(crate) fn merge(args: &MergeArgs) -> Outcome {
     use sagtrip::sweep::{parse_boundary_line, parse_point_line, Grid};
     let mut settings: Option<serde_json::Value> = None;
     let mut points = Vec::new();
@@ -39,7 +39,8 @@ pub(crate) fn merge(args: &MergeArgs) -> Result<String, String> {
                     "{} holds a sweep with other settings than {}: only shards of one sweep merge",
                     dir.display(),
                     args.folders[0].display()
-                ))
+                )
+                .into())
             }
             Some(_) => {}
         }

@@ -30,9 +30,69 @@ macro_rules! say {
     };
 }
 
+/// Why a command failed, and so its exit code: 2 for a mistake in the input (a file, an
+/// option), 1 for a run that could not give an answer (a simulation that failed, a
+/// protector that never connected its load).
+pub(crate) enum Failure {
+    /// A mistake in the input: exit code 2.
+    Input(String),
+    /// A run or verification that failed: exit code 1.
+    Run(String),
+}
+
+impl Failure {
+    /// The process exit code.
+    pub(crate) fn code(&self) -> u8 {
+        match self {
+            Failure::Input(_) => 2,
+            Failure::Run(_) => 1,
+        }
+    }
+
+    /// The message.
+    pub(crate) fn message(&self) -> &str {
+        match self {
+            Failure::Input(m) | Failure::Run(m) => m,
+        }
+    }
+}
+
+/// Any message built while reading the input is an input mistake.
+impl From<String> for Failure {
+    fn from(message: String) -> Self {
+        Failure::Input(message)
+    }
+}
+
+impl From<&str> for Failure {
+    fn from(message: &str) -> Self {
+        Failure::Input(message.to_string())
+    }
+}
+
+/// What a command returns: its report, or why it failed.
+pub(crate) type Outcome = Result<String, Failure>;
+
+/// A failed power-up, event run or replay of the circuit `name`: a run failure, except
+/// where the circuit lacks what the command needs (no mains source, no relay, an unknown
+/// name), which is an input mistake. The option that raises a limit is named here.
+pub(crate) fn scenario_failure(name: &str, e: sagtrip::scenario::ScenarioError) -> Failure {
+    use sagtrip::scenario::ScenarioError as E;
+    match &e {
+        E::NotSettled { .. } => {
+            Failure::Run(format!("{name}: {e} (raise it with --power-up-limit)"))
+        }
+        E::Simulation(_) => Failure::Run(format!("{name}: {e}")),
+        E::NoMains(_) | E::Unknown(_) | E::NoRelay => Failure::Input(format!("{name}: {e}")),
+    }
+}
+
 pub(crate) const SAFETY: &str = "\
 SAFETY: mains voltage can kill. sagtrip simulates a circuit; it does not replace testing \
-a real unit, local electrical codes, or the judgement of a licensed practitioner.";
+a real unit, local electrical codes, or the judgement of a licensed practitioner.
+
+Exit codes: 0 success; 1 a run could not give an answer (a failed simulation, a protector \
+that never connected its load); 2 a mistake in the input (a file, an option).";
 
 /// How long power-up and restoration may take before a run gives up.
 #[derive(Args)]

@@ -27,13 +27,13 @@ pub(crate) struct ReplayArgs {
     limits: LimitArgs,
 }
 
-pub(crate) fn replay_command(args: &ReplayArgs) -> Result<String, String> {
+pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
     let mut out = String::new();
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let started = Instant::now();
     let settled =
-        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| scenario_failure(&name, e))?;
     let scaled = open_scaled(&args.input)?;
     check_recording_frequency(
         scaled.lead_frequency_hz,

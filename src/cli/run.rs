@@ -74,7 +74,7 @@ pub(crate) enum StartArg {
     Rest,
 }
 
-pub(crate) fn run(args: &RunArgs) -> Result<String, String> {
+pub(crate) fn run(args: &RunArgs) -> Outcome {
     let mut out = String::new();
     for (given, option) in [
         (args.plot.is_some(), "--plot"),
@@ -87,7 +87,7 @@ pub(crate) fn run(args: &RunArgs) -> Result<String, String> {
         (args.limits.restore_limit.is_some(), "--restore-limit"),
     ] {
         if given {
-            return Err(format!("{option} goes with --event or --event-file"));
+            return Err(format!("{option} goes with --event or --event-file").into());
         }
     }
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
@@ -120,11 +120,13 @@ pub(crate) fn run(args: &RunArgs) -> Result<String, String> {
         StartArg::OperatingPoint => Start::OperatingPoint,
         StartArg::Rest => Start::Rest,
     };
-    let mut state = sim.start(start).map_err(|e| format!("{name}: {e}"))?;
+    let mut state = sim
+        .start(start)
+        .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
     let mut trace = Trace::new(probes);
     trace.record(sim.network(), &state);
     sim.advance(&mut state, duration, &mut trace)
-        .map_err(|e| format!("{name}: {e}"))?;
+        .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
     let wall = started.elapsed().as_secs_f64();
 
     if let Some(path) = &args.trace {
@@ -288,7 +290,7 @@ pub(crate) fn run(args: &RunArgs) -> Result<String, String> {
     Ok(out)
 }
 
-pub(crate) fn run_event_command(args: &RunArgs) -> Result<String, String> {
+pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
     let mut out = String::new();
     for (given, option) in [
         (args.duration.is_some(), "--duration"),
@@ -299,7 +301,8 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Result<String, String> {
         if given {
             return Err(format!(
                 "{option} does not go with --event (the event run powers up from rest and runs until the protector has restored)"
-            ));
+            )
+            .into());
         }
     }
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
@@ -350,7 +353,7 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Result<String, String> {
     };
 
     let started = Instant::now();
-    let result = run_event(&circuit, &profile, &options).map_err(|e| format!("{name}: {e}"))?;
+    let result = run_event(&circuit, &profile, &options).map_err(|e| scenario_failure(&name, e))?;
     let wall = started.elapsed().as_secs_f64();
     if let Some(path) = &args.trace {
         write_atomic(path, |w| result.trace.write_csv(&circuit, w))

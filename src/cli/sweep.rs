@@ -188,7 +188,7 @@ pub(crate) fn shard_option(text: &str) -> Result<(usize, usize), String> {
     }
 }
 
-pub(crate) fn sweep(args: &SweepArgs) -> Result<String, String> {
+pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     use sagtrip::sweep::{
         boundary_line, log_durations, point_line, refine_boundary, run_points, shard, Grid,
     };
@@ -225,7 +225,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Result<String, String> {
     }
     let started = Instant::now();
     let settled =
-        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| scenario_failure(&name, e))?;
     let settle_wall = started.elapsed().as_secs_f64();
     let frequency = settled.frequency_hz;
     let (first, last) = args.durations.split_once(':').ok_or_else(|| {
@@ -353,7 +353,12 @@ pub(crate) fn sweep(args: &SweepArgs) -> Result<String, String> {
                 args.resolution,
                 DEFAULT_EDGE_S,
             )
-            .map_err(|e| format!("{name}: {side} boundary at {}: {e}", short_duration(d)))?;
+            .map_err(|e| {
+                Failure::Run(format!(
+                    "{name}: {side} boundary at {}: {e}",
+                    short_duration(d)
+                ))
+            })?;
             if let Some(j) = &journal {
                 Journal::append(&j.boundary, &boundary_line(side, &b));
             }
@@ -380,7 +385,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Result<String, String> {
             &known,
             DEFAULT_EDGE_S,
         )
-        .map_err(|e| format!("{name}: longest ride-through: {e}"))?;
+        .map_err(|e| Failure::Run(format!("{name}: longest ride-through: {e}")))?;
         if let Some(j) = &journal {
             Journal::append(
                 &j.duration_boundary,
@@ -434,7 +439,7 @@ pub(crate) fn report_sweep(
     out_dir: Option<&Path>,
     plot: Option<&Path>,
     json: bool,
-) -> Result<String, String> {
+) -> Result<String, Failure> {
     use sagtrip::sweep::{cells, in_grid_order, Outcome};
     let mut out = String::new();
     let points = in_grid_order(r.grid, r.points);

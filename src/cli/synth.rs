@@ -48,17 +48,14 @@ pub(crate) enum FormatArg {
     Float32,
 }
 
-pub(crate) fn synth(args: &SynthArgs) -> Result<String, String> {
+pub(crate) fn synth(args: &SynthArgs) -> Outcome {
     use sagtrip::synth::{samples, wav_bytes, SampleFormat, SynthOptions};
     let mut out = String::new();
     let (rms, frequency) = nominal_option(&args.nominal)?;
     let edge = time_option(&args.edge, "edge")?.unwrap_or(DEFAULT_EDGE_S);
     let profile = resolve(&args.spec, frequency, edge).map_err(|e| format!("event: {e}"))?;
     if args.rate < 1000 {
-        return Err(format!(
-            "--rate {}: at least 1000 samples per second",
-            args.rate
-        ));
+        return Err(format!("--rate {}: at least 1000 samples per second", args.rate).into());
     }
     let full_scale = match &args.volts_per_full_scale {
         Some(text) => parse_value(text, Quantity::Voltage)

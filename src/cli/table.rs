@@ -75,7 +75,7 @@ impl sagtrip::table::Progress for Bar {
     }
 }
 
-pub(crate) fn table_command(args: &TableArgs) -> Result<String, String> {
+pub(crate) fn table_command(args: &TableArgs) -> Outcome {
     use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases, Progress};
     let mut out = String::new();
     let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
@@ -151,7 +151,13 @@ pub(crate) fn table_command(args: &TableArgs) -> Result<String, String> {
         path: &name,
         circuit: &circuit,
     };
-    let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)?;
+    use sagtrip::table::TableError;
+    let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)
+        .map_err(|e| match e {
+            TableError::Request(m) => Failure::Input(m),
+            TableError::Settle(path, e) => scenario_failure(&path, e),
+            TableError::Run(m) => Failure::Run(m),
+        })?;
     let bar = &progress.0;
     let text = markdown(&table);
     if let Some(path) = &args.csv {

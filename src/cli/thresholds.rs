@@ -30,7 +30,7 @@ pub(crate) struct ThresholdsArgs {
     limits: LimitArgs,
 }
 
-pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String> {
+pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Outcome {
     use sagtrip::thresholds::{find, SideThresholds, ThresholdOptions};
     let mut out = String::new();
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
@@ -40,15 +40,12 @@ pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String
     }
     let started = Instant::now();
     let settled =
-        sagtrip::scenario::settle(&circuit, &options).map_err(|e| format!("{name}: {e}"))?;
+        sagtrip::scenario::settle(&circuit, &options).map_err(|e| scenario_failure(&name, e))?;
     let frequency = settled.frequency_hz;
     let resolution_v = parse_value(&args.resolution, Quantity::Voltage)
         .map_err(|e| format!("--resolution: {e}"))?;
     if !resolution_v.is_finite() || resolution_v <= 0.0 {
-        return Err(format!(
-            "--resolution {}: must be above 0 V",
-            args.resolution
-        ));
+        return Err(format!("--resolution {}: must be above 0 V", args.resolution).into());
     }
     let threshold_options = ThresholdOptions {
         resolution_v,
@@ -59,8 +56,8 @@ pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Result<String, String
     if threshold_options.hold_s <= 0.0 || threshold_options.ramp_s <= 0.0 {
         return Err("--hold and --ramp must be longer than 0".into());
     }
-    let result =
-        find(&settled, &circuit, &threshold_options).map_err(|e| format!("{name}: {e}"))?;
+    let result = find(&settled, &circuit, &threshold_options)
+        .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
     if let Some(path) = &args.plot {
         let title = format!("Static thresholds: {}", circuit.title);
         write_plot(
