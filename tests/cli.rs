@@ -421,6 +421,20 @@ fn an_interrupted_sweep_resumes_where_it_stopped() {
     let json: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.join("sweep.json")).unwrap()).unwrap();
     assert_eq!(json["points"].as_array().unwrap().len(), 9);
+    // The torn line was dropped before appending: every journal line reads as a point (a
+    // row glued onto the half row would not), and the same points as the whole sweep.
+    let resumed = std::fs::read_to_string(dir.join("points.csv")).unwrap();
+    let mut lines: Vec<&str> = resumed.lines().skip(1).collect();
+    for line in &lines {
+        assert!(
+            sagtrip::sweep::parse_point_line(line).is_some(),
+            "{line:?} in\n{resumed}"
+        );
+    }
+    let mut whole: Vec<&str> = complete.lines().skip(1).collect();
+    lines.sort_unstable();
+    whole.sort_unstable();
+    assert_eq!(lines, whole);
     // Other settings cannot resume the folder.
     sagtrip_fails(
         &[

@@ -5,7 +5,6 @@ use std::path::{Path, PathBuf};
 use std::time::Instant;
 
 use std::fmt::Write as _;
-use std::io::Write as _;
 
 use clap::{Args, ValueEnum};
 

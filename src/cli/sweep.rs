@@ -55,121 +55,18 @@ pub(crate) struct SweepArgs {
     limits: LimitArgs,
 }
 
-/// The journal of a sweep in a folder: its settings, and the points and boundary points
-/// appended as they complete, so that an interrupted sweep loses nothing.
-pub(crate) struct Journal {
-    points: std::sync::Mutex<std::fs::File>,
-    boundary: std::sync::Mutex<std::fs::File>,
-    duration_boundary: std::sync::Mutex<std::fs::File>,
-}
-
-/// What a journal folder holds on opening.
-pub(crate) type JournalContents = (
-    Journal,
-    Vec<sagtrip::sweep::Point>,
-    Vec<(String, sagtrip::sweep::BoundaryPoint)>,
-    Vec<sagtrip::sweep::DurationBoundaryPoint>,
-);
-
-impl Journal {
-    /// Opens `dir` for a sweep with `settings`: a fresh folder, or with `resume` one holding
-    /// the same sweep (its completed points and boundary points are returned).
-    fn open(
-        dir: &Path,
-        settings: &serde_json::Value,
-        resume: bool,
-    ) -> Result<JournalContents, String> {
-        use sagtrip::sweep::{BOUNDARY_HEADER, DURATION_BOUNDARY_HEADER, POINTS_HEADER};
-        std::fs::create_dir_all(dir)
-            .map_err(|e| format!("cannot create {}: {e}", dir.display()))?;
-        let settings_path = dir.join("sweep-settings.json");
-        let (points, boundary, duration_boundary) = if settings_path.exists() {
-            if !resume {
-                return Err(format!(
-                    "{} already holds a sweep: add --resume to continue it, or choose another folder",
-                    dir.display()
-                ));
-            }
-            let text = std::fs::read_to_string(&settings_path)
-                .map_err(|e| format!("cannot read {}: {e}", settings_path.display()))?;
-            let before: serde_json::Value = serde_json::from_str(&text)
-                .map_err(|e| format!("{}: {e}", settings_path.display()))?;
-            if &before != settings {
-                return Err(format!(
-                    "{} holds a sweep with other settings; --resume needs the same circuit, grid and options",
-                    dir.display()
-                ));
-            }
-            (
-                read_journal(&dir.join("points.csv")),
-                read_journal(&dir.join("boundary.csv")),
-                read_journal(&dir.join("duration-boundary.csv")),
-            )
-        } else {
-            write_atomic(&settings_path, |w| {
-                w.write_all(
-                    serde_json::to_string_pretty(settings)
-                        .unwrap_or_default()
-                        .as_bytes(),
-                )
-            })
-            .map_err(|e| format!("cannot write {}: {e}", settings_path.display()))?;
-            (Vec::new(), Vec::new(), Vec::new())
-        };
-        let points_done = points
-            .iter()
-            .filter_map(|l| sagtrip::sweep::parse_point_line(l))
-            .collect();
-        let boundary_done = boundary
-            .iter()
-            .filter_map(|l| sagtrip::sweep::parse_boundary_line(l))
-            .collect();
-        let duration_boundary_done = duration_boundary
-            .iter()
-            .filter_map(|l| sagtrip::sweep::parse_duration_boundary_line(l))
-            .collect();
-        let open = |name: &str, header: &str| -> Result<std::fs::File, String> {
-            let path = dir.join(name);
-            let fresh = !path.exists();
-            let mut file = std::fs::OpenOptions::new()
-                .create(true)
-                .append(true)
-                .open(&path)
-                .map_err(|e| format!("cannot open {}: {e}", path.display()))?;
-            if fresh {
-                writeln!(file, "{header}")
-                    .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
-            }
-            Ok(file)
-        };
-        Ok((
-            Journal {
-                points: std::sync::Mutex::new(open("points.csv", POINTS_HEADER)?),
-                boundary: std::sync::Mutex::new(open("boundary.csv", BOUNDARY_HEADER)?),
-                duration_boundary: std::sync::Mutex::new(open(
-                    "duration-boundary.csv",
-                    DURATION_BOUNDARY_HEADER,
-                )?),
-            },
-            points_done,
-            boundary_done,
-            duration_boundary_done,
-        ))
+/// A journal error as the command line reports it: with the option that helps.
+pub(crate) fn journal_failure(e: sagtrip::sweep::journal::JournalError) -> Failure {
+    use sagtrip::sweep::journal::JournalError as E;
+    match e {
+        E::Occupied { .. } => Failure::Input(format!(
+            "{e}: add --resume to continue it, or choose another folder"
+        )),
+        E::OtherSettings { .. } => Failure::Input(format!(
+            "{e}; --resume needs the same circuit, grid and options"
+        )),
+        e => Failure::Input(e.to_string()),
     }
-
-    fn append(file: &std::sync::Mutex<std::fs::File>, line: &str) {
-        if let Ok(mut f) = file.lock() {
-            // A failed append only costs the point on a later resume.
-            let _ = writeln!(f, "{line}").and_then(|()| f.flush());
-        }
-    }
-}
-
-/// The lines after the header of a journal file, or none.
-pub(crate) fn read_journal(path: &Path) -> Vec<String> {
-    std::fs::read_to_string(path)
-        .map(|t| t.lines().skip(1).map(String::from).collect())
-        .unwrap_or_default()
 }
 
 /// Reads `--shard K/N`.
@@ -189,9 +86,7 @@ pub(crate) fn shard_option(text: &str) -> Result<(usize, usize), String> {
 }
 
 pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
-    use sagtrip::sweep::{
-        boundary_line, log_durations, point_line, refine_boundary, run_points, shard, Grid,
-    };
+    use sagtrip::sweep::{log_durations, refine_boundary, run_points, shard, Grid};
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let mut levels = level_range(&args.levels, "levels")?;
@@ -257,13 +152,16 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         "refine": !args.no_refine,
         "shard": format!("{k}/{n}"),
     });
-    let (journal, done_points, done_boundary, done_durations) = match &args.out {
+    let (journal, done) = match &args.out {
         Some(dir) => {
-            let (j, p, b, d) = Journal::open(dir, &settings, args.resume)?;
-            (Some(j), p, b, d)
+            let (j, c) = sagtrip::sweep::journal::Journal::open(dir, &settings, args.resume)
+                .map_err(journal_failure)?;
+            (Some(j), c)
         }
-        None => (None, Vec::new(), Vec::new(), Vec::new()),
+        None => (None, sagtrip::sweep::journal::Contents::default()),
     };
+    let (done_points, done_boundary, done_durations) =
+        (done.points, done.boundaries, done.durations);
 
     // This shard's points not yet in the journal.
     let mine = shard(&grid.points(), k, n);
@@ -289,7 +187,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     );
     let fresh = run_points(&settled, &circuit, &todo, DEFAULT_EDGE_S, &|p| {
         if let Some(j) = &journal {
-            Journal::append(&j.points, &point_line(p));
+            j.point(p);
         }
         bar.inc(1);
     });
@@ -360,7 +258,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
                 ))
             })?;
             if let Some(j) = &journal {
-                Journal::append(&j.boundary, &boundary_line(side, &b));
+                j.boundary(side, &b);
             }
             boundaries.push((side.to_string(), b));
             bar.inc(1);
@@ -387,10 +285,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         )
         .map_err(|e| Failure::Run(format!("{name}: longest ride-through: {e}")))?;
         if let Some(j) = &journal {
-            Journal::append(
-                &j.duration_boundary,
-                &sagtrip::sweep::duration_boundary_line(&b),
-            );
+            j.duration(&b);
         }
         durations_done.push(b);
         bar.inc(1);

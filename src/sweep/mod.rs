@@ -14,6 +14,8 @@ use crate::circuit::Circuit;
 use crate::profile::{Duration, Profile, Step};
 use crate::scenario::Settled;
 
+pub mod journal;
+
 /// The response class of one point.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize)]
 #[serde(rename_all = "kebab-case")]
