@@ -858,3 +858,66 @@ fn exit_codes_tell_input_mistakes_from_failed_runs() {
     ]);
     assert_eq!(never.status.code(), Some(1));
 }
+
+#[test]
+fn no_output_may_replace_an_input() {
+    // Writing a trace over the circuit file, events over the recording, or a merged sweep
+    // into one of its shards would destroy the input: refused before any work, the input
+    // unchanged, through a link or a roundabout path as well.
+    let dir = temp_path("no-overwrite");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(dir.join("sub")).unwrap();
+    let circuit = dir.join("guard.toml");
+    std::fs::write(&circuit, sagtrip::builtin::REFERENCE_GUARD).unwrap();
+    let c = circuit.to_str().unwrap();
+    let roundabout = dir.join("sub").join("..").join("guard.toml");
+    let link = dir.join("link.toml");
+    #[cfg(unix)]
+    std::os::unix::fs::symlink(&circuit, &link).unwrap();
+    let mut targets = vec![c.to_string(), roundabout.to_str().unwrap().to_string()];
+    if cfg!(unix) {
+        targets.push(link.to_str().unwrap().to_string());
+    }
+    for target in &targets {
+        let out = sagtrip(&["run", "--circuit", c, "--trace", target]);
+        assert_eq!(out.status.code(), Some(2), "{target}");
+        assert!(String::from_utf8_lossy(&out.stderr).contains("would replace it"));
+        let out = sagtrip(&[
+            "run",
+            "--circuit",
+            c,
+            "--event",
+            "dip:40%:10cyc",
+            "--plot",
+            target,
+        ]);
+        assert_eq!(out.status.code(), Some(2), "{target}");
+    }
+    assert_eq!(
+        std::fs::read_to_string(&circuit).unwrap(),
+        sagtrip::builtin::REFERENCE_GUARD
+    );
+    let wav = dir.join("rec.wav");
+    let w = wav.to_str().unwrap();
+    sagtrip_ok(&["synth", "dip:40%:10cyc", "--out", w]);
+    let before = std::fs::read(&wav).unwrap();
+    sagtrip_fails(
+        &["detect", w, "--calibrate", "230V", "--out", w],
+        "would replace it",
+    );
+    sagtrip_fails(
+        &["replay", w, "--calibrate", "230V", "--trace", w],
+        "would replace it",
+    );
+    assert_eq!(std::fs::read(&wav).unwrap(), before);
+    let shard = dir.join("shard");
+    sagtrip_fails(
+        &[
+            "merge",
+            shard.to_str().unwrap(),
+            "--out",
+            shard.to_str().unwrap(),
+        ],
+        "would replace it",
+    );
+}

@@ -27,6 +27,13 @@ pub(crate) struct DetectArgs {
 pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
     use sagtrip::detect::Detector;
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[
+            ("--out", args.out.as_deref()),
+            ("--plot", args.plot.as_deref()),
+        ],
+        &[Some(args.input.recording.as_path())],
+    )?;
     let scaled = open_scaled(&args.input)?;
     let measured_hz = scaled.lead_frequency_hz;
     let (declared, frequency, declared_how) = match &args.nominal {

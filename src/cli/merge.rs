@@ -19,6 +19,14 @@ pub(crate) struct MergeArgs {
 /// Joins the folders of a sharded sweep into one result.
 pub(crate) fn merge(args: &MergeArgs) -> Outcome {
     use sagtrip::sweep::journal;
+    let inputs: Vec<Option<&Path>> = args.folders.iter().map(|f| Some(f.as_path())).collect();
+    refuse_overwriting_inputs(
+        &[
+            ("--out", Some(args.out.as_path())),
+            ("--plot", args.plot.as_deref()),
+        ],
+        &inputs,
+    )?;
     let merged = journal::merge(&args.folders).map_err(journal_failure)?;
     journal::write_merged(&args.out, &merged).map_err(journal_failure)?;
     let journal::Merged {

@@ -86,6 +86,47 @@ pub(crate) fn scenario_failure(name: &str, e: sagtrip::scenario::ScenarioError) 
     }
 }
 
+/// Where a path leads: its canonical form, or for a file not yet there its folder's
+/// canonical form joined with its name (links followed either way).
+fn resolved(path: &Path) -> Option<PathBuf> {
+    if let Ok(p) = std::fs::canonicalize(path) {
+        return Some(p);
+    }
+    let name = path.file_name()?;
+    let parent = match path.parent() {
+        Some(p) if !p.as_os_str().is_empty() => p,
+        _ => Path::new("."),
+    };
+    std::fs::canonicalize(parent).ok().map(|p| p.join(name))
+}
+
+/// Refuses to run when an output (option, path) leads to one of the inputs: writing it
+/// would replace the input. Compares where the paths lead, links and `..` followed.
+pub(crate) fn refuse_overwriting_inputs(
+    outputs: &[(&str, Option<&Path>)],
+    inputs: &[Option<&Path>],
+) -> Result<(), Failure> {
+    let inputs: Vec<(PathBuf, &Path)> = inputs
+        .iter()
+        .flatten()
+        .filter_map(|p| resolved(p).map(|r| (r, *p)))
+        .collect();
+    for (option, path) in outputs {
+        let Some(path) = path else { continue };
+        let Some(target) = resolved(path) else {
+            continue;
+        };
+        if let Some((_, input)) = inputs.iter().find(|(r, _)| *r == target) {
+            return Err(Failure::Input(format!(
+                "{option} {}: that is the input {}; writing it would replace it (choose another path)",
+                path.display(),
+                input.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
 pub(crate) const SAFETY: &str = "\
 SAFETY: mains voltage can kill. sagtrip simulates a circuit; it does not replace testing \
 a real unit, local electrical codes, or the judgement of a licensed practitioner.

@@ -29,6 +29,16 @@ pub(crate) struct ReplayArgs {
 
 pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[
+            ("--trace", args.trace.as_deref()),
+            ("--plot", args.plot.as_deref()),
+        ],
+        &[
+            Some(args.input.recording.as_path()),
+            args.circuit.as_deref(),
+        ],
+    )?;
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let started = Instant::now();

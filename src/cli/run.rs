@@ -76,6 +76,10 @@ pub(crate) enum StartArg {
 
 pub(crate) fn run(args: &RunArgs) -> Outcome {
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[("--trace", args.trace.as_deref())],
+        &[args.circuit.as_deref()],
+    )?;
     for (given, option) in [
         (args.plot.is_some(), "--plot"),
         (args.nominal.is_some(), "--nominal"),
@@ -292,6 +296,13 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
 
 pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[
+            ("--trace", args.trace.as_deref()),
+            ("--plot", args.plot.as_deref()),
+        ],
+        &[args.circuit.as_deref(), args.event_file.as_deref()],
+    )?;
     for (given, option) in [
         (args.duration.is_some(), "--duration"),
         (args.events, "--events"),

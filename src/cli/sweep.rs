@@ -87,6 +87,13 @@ pub(crate) fn shard_option(text: &str) -> Result<(usize, usize), String> {
 
 pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     use sagtrip::sweep::{log_durations, refine_boundary, run_points, shard, Grid};
+    refuse_overwriting_inputs(
+        &[
+            ("--out", args.out.as_deref()),
+            ("--plot", args.plot.as_deref()),
+        ],
+        &[args.circuit.as_deref()],
+    )?;
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let mut levels = level_range(&args.levels, "levels")?;

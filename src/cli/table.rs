@@ -78,6 +78,14 @@ impl sagtrip::table::Progress for Bar {
 pub(crate) fn table_command(args: &TableArgs) -> Outcome {
     use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases, Progress};
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[
+            ("--csv", args.csv.as_deref()),
+            ("--markdown", args.markdown.as_deref()),
+            ("--html", args.html.as_deref()),
+        ],
+        &[args.circuit.as_deref(), args.plan.as_deref()],
+    )?;
     let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     // The plan first: a mistake in it is reported before any simulation.

@@ -33,6 +33,10 @@ pub(crate) struct ThresholdsArgs {
 pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Outcome {
     use sagtrip::thresholds::{find, SideThresholds, ThresholdOptions};
     let mut out = String::new();
+    refuse_overwriting_inputs(
+        &[("--plot", args.plot.as_deref())],
+        &[args.circuit.as_deref()],
+    )?;
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     if let Some(path) = &args.plot {
