@@ -1353,3 +1353,99 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
     );
     out
 }
+
+/// The trip map of an HTML report: a coarse grid run from the settled protector (the sweep
+/// command refines maps further).
+#[derive(Clone, Debug, PartialEq)]
+pub struct ReportMap {
+    /// Levels, percent of nominal (dips below 100, swells above).
+    pub levels_pct: Vec<f64>,
+    /// How many durations, log-spaced from half a cycle to `longest_s`; 0 for no map.
+    pub durations: usize,
+    /// The longest duration, seconds.
+    pub longest_s: f64,
+    /// Start phase angles, degrees.
+    pub phases_deg: Vec<f64>,
+}
+
+impl Default for ReportMap {
+    /// Dips to 0, 10 .. 90% and swells to 110, 120, 130 and 150%, 10 durations from half a
+    /// cycle to 10 s, at 0 and 90 degrees: 280 runs.
+    fn default() -> Self {
+        Self {
+            levels_pct: (0..10)
+                .map(|k| f64::from(k) * 10.0)
+                .chain([110.0, 120.0, 130.0, 150.0])
+                .collect(),
+            durations: 10,
+            longest_s: 10.0,
+            phases_deg: vec![0.0, 90.0],
+        }
+    }
+}
+
+impl ReportMap {
+    /// The grid at `frequency_hz` (its shortest duration is half a cycle).
+    pub fn grid(&self, frequency_hz: f64) -> crate::sweep::Grid {
+        crate::sweep::Grid {
+            levels_pct: self.levels_pct.clone(),
+            durations_s: if self.durations == 0 {
+                Vec::new()
+            } else {
+                crate::sweep::log_durations(0.5 / frequency_hz, self.longest_s, self.durations)
+            },
+            phases_deg: self.phases_deg.clone(),
+        }
+    }
+}
+
+/// The whole HTML report of a table: the page with its trip map (run here on `settled`,
+/// `progress` told of each point) and the threshold plot. A map with no durations is left
+/// out.
+pub fn html_report(
+    table: &Table,
+    settled: &Settled,
+    circuit: &Circuit,
+    map: &ReportMap,
+    progress: &dyn Progress,
+) -> Result<String, String> {
+    let mut figures: Vec<(String, String)> = Vec::new();
+    let grid = map.grid(settled.frequency_hz);
+    if !grid.points().is_empty() {
+        progress.stage("trip map", grid.points().len());
+        let points =
+            crate::sweep::run_grid(settled, circuit, &grid, DEFAULT_EDGE_S, &|| progress.done());
+        let cells = crate::sweep::cells(&points);
+        let phases: Vec<String> = grid.phases_deg.iter().map(|p| format!("{p}")).collect();
+        figures.push((
+            format!(
+                "Trip map: worst case over {} degrees for each level and duration, with the \
+                 reference ride-through curves and the longest ride-through per level \
+                 (sagtrip sweep refines the boundary)",
+                phases.join(" and ")
+            ),
+            crate::plot::map_svg(&crate::plot::MapData {
+                title: format!("Trip map: {}", circuit.title),
+                cells: &cells,
+                durations_s: &grid.durations_s,
+                levels_pct: &grid.levels_pct,
+                boundaries: Vec::new(),
+                duration_boundary: &table.longest_ride_through,
+                frequency_hz: settled.frequency_hz,
+            })?,
+        ));
+    }
+    if let Some(t) = &table.thresholds {
+        figures.push((
+            "Static thresholds: the trip voltages from normal supply and the reset voltages \
+             after a trip"
+                .to_string(),
+            crate::plot::thresholds_svg(t, &format!("Static thresholds: {}", circuit.title))?,
+        ));
+    }
+    let refs: Vec<(&str, &str)> = figures
+        .iter()
+        .map(|(c, s)| (c.as_str(), s.as_str()))
+        .collect();
+    Ok(html(table, &refs))
+}

@@ -673,6 +673,8 @@ fn table_writes_a_self_contained_html_report() {
         "0",
         "--html",
         html.to_str().unwrap(),
+        "--map-durations",
+        "3",
         "--quiet",
     ]);
     let page = std::fs::read_to_string(&html).unwrap();

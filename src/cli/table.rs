@@ -32,6 +32,10 @@ pub(crate) struct TableArgs {
     /// swells 110..150% from half a cycle to 10 s at 0 and 90 degrees, the threshold plot).
     #[arg(long)]
     html: Option<PathBuf>,
+    /// Durations of the HTML report's trip map (log-spaced from half a cycle to 10 s);
+    /// 0 leaves the map out.
+    #[arg(long, value_name = "N", default_value_t = 10)]
+    map_durations: usize,
     /// Print the table as JSON instead of Markdown.
     #[arg(long)]
     json: bool,
@@ -76,7 +80,7 @@ impl sagtrip::table::Progress for Bar {
 }
 
 pub(crate) fn table_command(args: &TableArgs) -> Outcome {
-    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases, Progress};
+    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases};
     let mut out = String::new();
     refuse_overwriting_inputs(
         &[
@@ -177,49 +181,11 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
             .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
     if let Some(path) = &args.html {
-        // The report's trip map: a coarse grid (the sweep command refines it further).
-        let map_grid = sagtrip::sweep::Grid {
-            levels_pct: (0..10)
-                .map(|k| f64::from(k) * 10.0)
-                .chain([110.0, 120.0, 130.0, 150.0])
-                .collect(),
-            durations_s: sagtrip::sweep::log_durations(0.5 / settled.frequency_hz, 10.0, 10),
-            phases_deg: vec![0.0, 90.0],
+        let map = sagtrip::table::ReportMap {
+            durations: args.map_durations,
+            ..Default::default()
         };
-        progress.stage("trip map", map_grid.points().len());
-        let points =
-            sagtrip::sweep::run_grid(&settled, &circuit, &map_grid, DEFAULT_EDGE_S, &|| {
-                bar.inc(1)
-            });
-        let map = sagtrip::sweep::cells(&points);
-        let map_svg = sagtrip::plot::map_svg(&sagtrip::plot::MapData {
-            title: format!("Trip map: {}", circuit.title),
-            cells: &map,
-            durations_s: &map_grid.durations_s,
-            levels_pct: &map_grid.levels_pct,
-            boundaries: Vec::new(),
-            duration_boundary: &table.longest_ride_through,
-            frequency_hz: settled.frequency_hz,
-        })?;
-        let mut figures: Vec<(String, String)> = vec![(
-            "Trip map: worst case over 0 and 90 degrees for each level and duration, with the \
-             reference ride-through curves (sagtrip sweep refines the boundary)"
-                .to_string(),
-            map_svg,
-        )];
-        if let Some(t) = &table.thresholds {
-            figures.push((
-                "Static thresholds: the trip voltages from normal supply and the reset \
-                 voltages after a trip"
-                    .to_string(),
-                sagtrip::plot::thresholds_svg(t, &format!("Static thresholds: {}", circuit.title))?,
-            ));
-        }
-        let refs: Vec<(&str, &str)> = figures
-            .iter()
-            .map(|(c, s)| (c.as_str(), s.as_str()))
-            .collect();
-        let page = sagtrip::table::html(&table, &refs);
+        let page = sagtrip::table::html_report(&table, &settled, &circuit, &map, &progress)?;
         write_atomic(path, |w| w.write_all(page.as_bytes()))
             .map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     }
