@@ -39,124 +39,44 @@ pub(crate) struct RecordingInput {
     pub(crate) phase_jump: f64,
 }
 
-/// RMS over the whole cycles (rising zero crossing to rising zero crossing) of `samples`.
-pub(crate) fn whole_cycle_rms(samples: &[f64]) -> Option<f64> {
-    let rising: Vec<usize> = (1..samples.len())
-        .filter(|&i| samples[i - 1] < 0.0 && samples[i] >= 0.0)
-        .collect();
-    if rising.len() < 2 {
-        return None;
-    }
-    let (a, b) = (rising[0], rising[rising.len() - 1]);
-    let sum: f64 = samples[a..b].iter().map(|v| v * v).sum();
-    Some((sum / (b - a) as f64).sqrt())
-}
-
-/// An opened, scaled recording: its first samples read ahead for calibration.
-pub(crate) struct Scaled {
-    pub(crate) lead: Vec<f64>,
-    /// The `--calibrate` voltage, if the scale was calibrated.
-    pub(crate) calibrated_to: Option<f64>,
-    /// The frequency of the first whole cycles, hertz.
-    pub(crate) lead_frequency_hz: Option<f64>,
-    pub(crate) rest: sagtrip::recording::Samples,
-    pub(crate) scale: f64,
-    pub(crate) how: String,
-    pub(crate) rate: f64,
-    pub(crate) description: String,
-}
-
-impl Scaled {
-    /// Every sample in volts.
-    pub(crate) fn volts(self) -> impl Iterator<Item = Result<f64, String>> {
-        let scale = self.scale;
-        self.lead.into_iter().map(move |v| Ok(v * scale)).chain(
-            self.rest
-                .map(move |s| s.map(|v| v * scale).map_err(|e| e.to_string())),
-        )
-    }
-}
+pub(crate) use sagtrip::recording::{whole_cycle_rms, Scaled};
 
 /// Refuses a recording whose first cycles' frequency differs from `expected_hz` by more
-/// than 5%.
+/// than 5%, naming what the frequency was expected from (`what`).
 pub(crate) fn check_recording_frequency(
     measured_hz: Option<f64>,
     expected_hz: f64,
     what: &str,
 ) -> Result<(), String> {
-    match measured_hz {
-        Some(m) if (m / expected_hz - 1.0).abs() > 0.05 => Err(format!(
-            "the recording's first cycles run at {m:.2} Hz, more than 5% from {what} \
-             ({expected_hz} Hz)"
-        )),
-        _ => Ok(()),
-    }
+    sagtrip::recording::check_frequency(measured_hz, expected_hz)
+        .map_err(|e| format!("{e} ({what})"))
 }
 
-/// Opens a recording and works out its scale (given, calibrated on the first whole cycles
-/// against `declared` volts, or 1 for a CSV column in volts).
+/// Opens the recording with the scale the options ask for.
 pub(crate) fn open_scaled(input: &RecordingInput) -> Result<Scaled, String> {
-    use sagtrip::recording::{open, CsvColumns};
+    use sagtrip::recording::{CsvColumns, Scale, ScaleError};
     let columns = CsvColumns {
         time: input.time_column.clone(),
         voltage: input.voltage_column.clone(),
     };
-    let mut samples = open(&input.recording, input.channel, &columns).map_err(|e| e.to_string())?;
-    let rate = samples.sample_rate;
-    let description = samples.description.clone();
-    // Four cycles at 50 Hz (four whole ones at 60 Hz): enough to calibrate and to time the
-    // supply, short enough to end before an event that a recording's lead-in precedes.
-    let lead_count = (rate / 50.0 * 4.0).ceil() as usize + 2;
-    let mut lead = Vec::with_capacity(lead_count);
-    for s in samples.by_ref().take(lead_count) {
-        lead.push(s.map_err(|e| e.to_string())?);
-    }
-    let (scale, how) = match (&input.volts_per_full_scale, &input.calibrate) {
-        (Some(text), _) => {
-            let v = parse_value(text, Quantity::Voltage)
-                .map_err(|e| format!("--volts-per-full-scale: {e}"))?;
-            (v, format!("{v} V per full scale (given)"))
-        }
-        (None, Some(text)) => {
-            let target =
-                parse_value(text, Quantity::Voltage).map_err(|e| format!("--calibrate: {e}"))?;
-            let rms = whole_cycle_rms(&lead).filter(|r| *r > 0.0).ok_or_else(|| {
-                format!(
-                    "--calibrate: the recording's first {} samples hold no whole cycle to calibrate on",
-                    lead.len()
-                )
-            })?;
-            (
-                target / rms,
-                format!(
-                    "{:.6} per unit (calibrated: the first whole cycles read {target} V rms)",
-                    target / rms
-                ),
-            )
-        }
-        (None, None) if !samples.full_scale_fractions => {
-            (1.0, "1 (the CSV column in volts)".to_string())
-        }
-        (None, None) => {
-            return Err(
-                "a WAV recording needs its scale: --volts-per-full-scale VOLTS or --calibrate 230V"
-                    .into(),
-            )
-        }
+    let scale = match (&input.volts_per_full_scale, &input.calibrate) {
+        (Some(text), _) => Some(Scale::VoltsPerFullScale(
+            parse_value(text, Quantity::Voltage)
+                .map_err(|e| format!("--volts-per-full-scale: {e}"))?,
+        )),
+        (None, Some(text)) => Some(Scale::CalibrateTo(
+            parse_value(text, Quantity::Voltage).map_err(|e| format!("--calibrate: {e}"))?,
+        )),
+        (None, None) => None,
     };
-    let calibrated_to = match (&input.volts_per_full_scale, &input.calibrate) {
-        (None, Some(text)) => parse_value(text, Quantity::Voltage).ok(),
-        _ => None,
-    };
-    Ok(Scaled {
-        lead_frequency_hz: sagtrip::detect::measured_frequency(&lead, rate),
-        calibrated_to,
-        lead,
-        rest: samples,
-        scale,
-        how,
-        rate,
-        description,
+    sagtrip::recording::open_scaled(&input.recording, input.channel, &columns, scale).map_err(|e| {
+        match e {
+            ScaleError::NeedsScale => {
+                format!("{e}: --volts-per-full-scale VOLTS or --calibrate 230V")
+            }
+            ScaleError::NoWholeCycle { .. } => format!("--calibrate: {e}"),
+            ScaleError::Read(e) => e.to_string(),
+        }
     })
 }
 
