@@ -12,6 +12,11 @@
 
 #![warn(missing_docs)]
 
+/// The caution every report that carries numbers ends with.
+pub const CAUTION: &str = "Caution: mains voltage can kill. These are simulated results of a \
+     circuit model: they do not replace testing a real unit, the local electrical codes that \
+     apply, or the judgement of a licensed practitioner.";
+
 pub mod builtin;
 pub mod circuit;
 pub mod circuit_file;

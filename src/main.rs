@@ -85,6 +85,17 @@ fn main() -> ExitCode {
         Ok(text) => {
             // A closed pipe (e.g. `| head`) is not an error worth a panic.
             let _ = std::io::stdout().write_all(text.as_bytes());
+            // Every report with numbers carries the caution: after the text, or on the
+            // error stream where the output is JSON (which must stay valid JSON). A report
+            // that already holds it (the table's Markdown) is not given it twice.
+            let json = text.trim_start().starts_with(['{', '[']);
+            if !text.trim().is_empty() && !text.contains(sagtrip::CAUTION) {
+                if json {
+                    eprintln!("{}", sagtrip::CAUTION);
+                } else {
+                    let _ = writeln!(std::io::stdout(), "\n{}", sagtrip::CAUTION);
+                }
+            }
             ExitCode::SUCCESS
         }
         Err(failure) => {

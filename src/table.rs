@@ -972,14 +972,14 @@ fn summary_sentence(table: &Table) -> String {
     format!(
         "{} on a {:.0} V {:.0} Hz supply; each test at {} start phase{cases}; {} simulated \
          runs. Times in ms as min / typical / max over {over} (typical: the median). \
-         Power-up limit {} s, restore limit {} s after each event.",
+         Power-up limit {}, restore limit {} after each event.",
         table.plan,
         table.nominal_rms_v,
         table.frequency_hz,
         phases.join(", "),
         table.runs,
-        table.power_up_limit_s,
-        table.restore_limit_s
+        crate::units::format_duration(table.power_up_limit_s),
+        crate::units::format_duration(table.restore_limit_s)
     )
 }
 
@@ -1080,6 +1080,7 @@ pub fn markdown(table: &Table) -> String {
     for note in &table.notes {
         let _ = writeln!(out, "\nNote: {note}");
     }
+    let _ = writeln!(out, "\n{}", crate::CAUTION);
     out
 }
 

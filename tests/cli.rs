@@ -641,6 +641,9 @@ fn table_runs_a_plan_file_and_writes_markdown_and_csv() {
     assert!(stdout.contains("0°, 180° start phase; 6 simulated runs"));
     let written = std::fs::read_to_string(&md).unwrap();
     assert!(stdout.starts_with(&written));
+    // The datasheet table carries the safety caution, once.
+    assert_eq!(written.matches(sagtrip::CAUTION).count(), 1);
+    assert_eq!(stdout.matches(sagtrip::CAUTION).count(), 1);
     let lines: Vec<String> = std::fs::read_to_string(&csv)
         .unwrap()
         .lines()
@@ -922,4 +925,16 @@ fn no_output_may_replace_an_input() {
         ],
         "would replace it",
     );
+}
+
+#[test]
+fn every_report_with_numbers_carries_the_caution() {
+    // Text reports end with it; JSON stays valid JSON and the caution goes to the error
+    // stream.
+    let out = sagtrip_ok(&["run", "--event", "interrupt:10cyc"]);
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.trim_end().ends_with(sagtrip::CAUTION), "{text}");
+    let out = sagtrip_ok(&["run", "--event", "interrupt:10cyc", "--json"]);
+    let _: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(String::from_utf8_lossy(&out.stderr).contains(sagtrip::CAUTION));
 }
