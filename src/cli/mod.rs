@@ -277,14 +277,6 @@ pub(crate) fn write_plot(
     }
 }
 
-pub(crate) fn short_duration(s: f64) -> String {
-    if s < 1.0 {
-        format!("{:.0}ms", s * 1e3)
-    } else {
-        format!("{s:.1}s")
-    }
-}
-
 /// `v` rounded to 9 significant digits, printed in its shortest form (no binary noise).
 pub(crate) fn significant(v: f64) -> f64 {
     format!("{v:.8e}").parse().unwrap_or(v)

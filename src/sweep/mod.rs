@@ -15,6 +15,8 @@ use crate::profile::{Duration, Profile, Step};
 use crate::scenario::Settled;
 
 pub mod journal;
+pub mod report;
+pub mod study;
 
 /// The response class of one point.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord, Serialize)]
