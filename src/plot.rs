@@ -19,11 +19,16 @@ use crate::scenario::EventRun;
 
 static FONT: Once = Once::new();
 
+/// A figure that could not be drawn or written: the drawing backend's reason.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error("plot: {0}")]
+pub struct PlotError(pub String);
+
 /// Draws the series legend of `chart` at `position`, in the style of every sagtrip plot.
 fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
     chart: &mut ChartContext<'a, DB, CT>,
     position: SeriesLabelPosition,
-) -> Result<(), String> {
+) -> Result<(), PlotError> {
     chart
         .configure_series_labels()
         .position(position)
@@ -31,7 +36,7 @@ fn legend<'a, DB: DrawingBackend + 'a, CT: plotters::coord::CoordTranslate>(
         .background_style(WHITE.mix(0.85))
         .border_style(BLACK.mix(0.3))
         .draw()
-        .map_err(|e| format!("plot: {e:?}"))
+        .map_err(|e| PlotError(format!("{e:?}")))
 }
 
 /// A title font size that fits `text` in `width` pixels (about 0.55 em per character),
@@ -295,8 +300,11 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
     }
 }
 
-fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Result<(), String> {
-    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
+fn draw<DB: DrawingBackend>(
+    root: DrawingArea<DB, Shift>,
+    figure: &Figure,
+) -> Result<(), PlotError> {
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let root = root
         .titled(
@@ -406,7 +414,7 @@ fn draw<DB: DrawingBackend>(root: DrawingArea<DB, Shift>, figure: &Figure) -> Re
 const SIZE: (u32, u32) = (1100, 1200);
 
 /// Renders the run as SVG text.
-pub fn event_svg(run: &EventRun, circuit: &Circuit, name: &str) -> Result<String, String> {
+pub fn event_svg(run: &EventRun, circuit: &Circuit, name: &str) -> Result<String, PlotError> {
     register_font();
     let figure = build(run, circuit, name);
     let mut svg = String::new();
@@ -419,7 +427,12 @@ pub fn event_svg(run: &EventRun, circuit: &Circuit, name: &str) -> Result<String
 
 /// Renders the run as a PNG file at `path` (written whole or not at all by the caller's
 /// choice of a temporary path).
-pub fn event_png(run: &EventRun, circuit: &Circuit, name: &str, path: &Path) -> Result<(), String> {
+pub fn event_png(
+    run: &EventRun,
+    circuit: &Circuit,
+    name: &str,
+    path: &Path,
+) -> Result<(), PlotError> {
     register_font();
     let figure = build(run, circuit, name);
     draw(BitMapBackend::new(path, SIZE).into_drawing_area(), &figure)
@@ -479,9 +492,9 @@ fn edges(values: &[f64], log: bool) -> Vec<f64> {
 fn draw_map<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     map: &MapData<'_>,
-) -> Result<(), String> {
+) -> Result<(), PlotError> {
     use crate::sweep::Outcome;
-    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let x_edges = edges(map.durations_s, true);
     let mut y_edges = edges(map.levels_pct, false);
@@ -662,7 +675,7 @@ fn draw_map<DB: DrawingBackend>(
 const MAP_SIZE: (u32, u32) = (1200, 800);
 
 /// Renders a trip map as SVG text.
-pub fn map_svg(map: &MapData<'_>) -> Result<String, String> {
+pub fn map_svg(map: &MapData<'_>) -> Result<String, PlotError> {
     register_font();
     let mut svg = String::new();
     draw_map(
@@ -673,7 +686,7 @@ pub fn map_svg(map: &MapData<'_>) -> Result<String, String> {
 }
 
 /// Renders a trip map as a PNG file at `path`.
-pub fn map_png(map: &MapData<'_>, path: &Path) -> Result<(), String> {
+pub fn map_png(map: &MapData<'_>, path: &Path) -> Result<(), PlotError> {
     register_font();
     draw_map(BitMapBackend::new(path, MAP_SIZE).into_drawing_area(), map)
 }
@@ -699,9 +712,9 @@ pub struct RecordingPlot<'a> {
 fn draw_recording<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     p: &RecordingPlot<'_>,
-) -> Result<(), String> {
+) -> Result<(), PlotError> {
     use crate::detect::EventKind as K;
-    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let root = root
         .titled(&p.title, ("sans-serif", title_size(&p.title, 1100)))
@@ -896,7 +909,7 @@ fn draw_recording<DB: DrawingBackend>(
 }
 
 /// Renders a recording plot as SVG text.
-pub fn recording_svg(p: &RecordingPlot<'_>) -> Result<String, String> {
+pub fn recording_svg(p: &RecordingPlot<'_>) -> Result<String, PlotError> {
     register_font();
     let mut svg = String::new();
     draw_recording(
@@ -907,7 +920,7 @@ pub fn recording_svg(p: &RecordingPlot<'_>) -> Result<String, String> {
 }
 
 /// Renders a recording plot as a PNG file at `path`.
-pub fn recording_png(p: &RecordingPlot<'_>, path: &Path) -> Result<(), String> {
+pub fn recording_png(p: &RecordingPlot<'_>, path: &Path) -> Result<(), PlotError> {
     register_font();
     draw_recording(BitMapBackend::new(path, (1100, 900)).into_drawing_area(), p)
 }
@@ -918,8 +931,8 @@ fn draw_thresholds<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     t: &crate::thresholds::StaticThresholds,
     title: &str,
-) -> Result<(), String> {
-    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| format!("plot: {e:?}");
+) -> Result<(), PlotError> {
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let nominal = t.nominal_rms_v;
     let mut values = vec![nominal];
@@ -1031,7 +1044,7 @@ fn draw_thresholds<DB: DrawingBackend>(
 pub fn thresholds_svg(
     t: &crate::thresholds::StaticThresholds,
     title: &str,
-) -> Result<String, String> {
+) -> Result<String, PlotError> {
     register_font();
     let mut svg = String::new();
     draw_thresholds(
@@ -1047,7 +1060,7 @@ pub fn thresholds_png(
     t: &crate::thresholds::StaticThresholds,
     title: &str,
     path: &Path,
-) -> Result<(), String> {
+) -> Result<(), PlotError> {
     register_font();
     draw_thresholds(
         BitMapBackend::new(path, THRESHOLD_SIZE).into_drawing_area(),

@@ -418,12 +418,12 @@ pub struct Scaled {
 
 impl Scaled {
     /// Every sample in volts.
-    pub fn volts(self) -> impl Iterator<Item = Result<f64, String>> {
+    pub fn volts(self) -> impl Iterator<Item = Result<f64, RecordingError>> {
         let scale = self.scale;
-        self.lead.into_iter().map(move |v| Ok(v * scale)).chain(
-            self.rest
-                .map(move |s| s.map(|v| v * scale).map_err(|e| e.to_string())),
-        )
+        self.lead
+            .into_iter()
+            .map(move |v| Ok(v * scale))
+            .chain(self.rest.map(move |s| s.map(|v| v * scale)))
     }
 }
 

@@ -689,6 +689,25 @@ impl Settled {
     }
 }
 
+/// Why a replay stopped.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ReplayError {
+    /// A sample of the recording could not be read.
+    #[error("sample {index}: {message}")]
+    Sample {
+        /// Index of the sample, from 0.
+        index: usize,
+        /// The reader's reason.
+        message: String,
+    },
+    /// The recording never rises through zero: there is no point to join it at.
+    #[error("the recording has no rising zero crossing to join")]
+    NoCrossing,
+    /// The simulation failed.
+    #[error(transparent)]
+    Simulation(#[from] SimError),
+}
+
 /// A trip of the load relay during a replay, in recording time.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ReplayTrip {
@@ -798,7 +817,7 @@ impl Settled {
         rate: f64,
         thresholds: crate::detect::Thresholds,
         probes: Option<Vec<Probe>>,
-    ) -> Result<Replay, String> {
+    ) -> Result<Replay, ReplayError> {
         self.replay_with_progress(samples, rate, thresholds, probes, &mut |_| {})
     }
 
@@ -811,7 +830,7 @@ impl Settled {
         thresholds: crate::detect::Thresholds,
         probes: Option<Vec<Probe>>,
         progress: &mut dyn FnMut(f64),
-    ) -> Result<Replay, String> {
+    ) -> Result<Replay, ReplayError> {
         let mut sim = self.sim.clone();
         let mut state = self.state.clone();
         let before = state.stats;
@@ -837,7 +856,7 @@ impl Settled {
         // The settled sine carries on up to the join, so the supply never pauses: the
         // recording's samples take over only from that rising zero crossing.
         sim.advance(&mut state, t_sim0, &mut watch)
-            .map_err(|e| e.to_string())?;
+            .map_err(ReplayError::Simulation)?;
         let chunk = (rate as usize).max(16);
         let mut buffer: Vec<f64> = Vec::with_capacity(chunk + 1);
         let mut previous: Option<f64> = None;
@@ -850,7 +869,7 @@ impl Settled {
                      buffer: &[f64],
                      first_index: usize,
                      shift: f64|
-         -> Result<(), String> {
+         -> Result<(), ReplayError> {
             let start_s = first_index as f64 / rate + shift;
             sim.set_source_waveform(
                 self.mains.part,
@@ -860,15 +879,19 @@ impl Settled {
                     values: buffer.into(),
                 },
             )
-            .map_err(|e| e.to_string())?;
+            .map_err(ReplayError::Simulation)?;
             let end = start_s + (buffer.len() - 1) as f64 / rate;
             if end > state.time {
-                sim.advance(state, end, watch).map_err(|e| e.to_string())?;
+                sim.advance(state, end, watch)
+                    .map_err(ReplayError::Simulation)?;
             }
             Ok(())
         };
         for (index, sample) in samples.enumerate() {
-            let v = sample.map_err(|e| e.to_string())?;
+            let v = sample.map_err(|e| ReplayError::Sample {
+                index,
+                message: e.to_string(),
+            })?;
             detector.push(v);
             match shift {
                 None => {
@@ -896,7 +919,7 @@ impl Settled {
             }
             previous = Some(v);
         }
-        let shift = shift.ok_or("the recording has no rising zero crossing to join")?;
+        let shift = shift.ok_or(ReplayError::NoCrossing)?;
         if buffer.len() >= 2 {
             flush(
                 &mut sim,

@@ -57,14 +57,22 @@ pub const DEFAULT_SWELL_CYCLES: [f64; 3] = [10.0, 25.0, 250.0];
 /// The default start phase angles, degrees.
 pub const DEFAULT_PHASES: [f64; 4] = [0.0, 90.0, 180.0, 270.0];
 
+/// A class without preferred test levels in IEC 61000-4-11.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error(
+    "class {class}: the standard's preferred levels exist for classes 2 and 3 (class 1 and \
+     class X are agreed case by case: give them as a plan file)"
+)]
+pub struct NoPreferredLevels {
+    /// The class asked for.
+    pub class: u8,
+}
+
 /// The default plan: the IEC 61000-4-11 preferred tests of `class` (2 or 3) at
 /// `frequency_hz`, the default swells, the static thresholds, at 0, 90, 180 and 270 degrees.
-pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, String> {
+pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, NoPreferredLevels> {
     if class != 2 && class != 3 {
-        return Err(format!(
-            "class {class}: the standard's preferred levels exist for classes 2 and 3 (class 1 \
-             and class X are agreed case by case: give them as a plan file)"
-        ));
+        return Err(NoPreferredLevels { class });
     }
     let sixty = (frequency_hz - 60.0).abs() < 5.0;
     let mut tests: Vec<PlanTest> = iec_presets()
@@ -414,7 +422,7 @@ pub fn run_tests(
     circuit: &Circuit,
     plan: &Plan,
     done: &(dyn Fn() + Sync),
-) -> Result<Vec<Row>, String> {
+) -> Result<Vec<Row>, TableError> {
     run_cases(&[(settled, circuit)], plan, done)
 }
 
@@ -425,7 +433,7 @@ pub fn run_cases(
     cases: &[(&Settled, &Circuit)],
     plan: &Plan,
     done: &(dyn Fn() + Sync),
-) -> Result<Vec<Row>, String> {
+) -> Result<Vec<Row>, TableError> {
     let mut jobs: Vec<(usize, usize, f64)> = Vec::new();
     for t in 0..plan.tests.len() {
         for c in 0..cases.len() {
@@ -434,7 +442,7 @@ pub fn run_cases(
             }
         }
     }
-    let results: Vec<Result<RunOutcome, String>> = jobs
+    let results: Vec<Result<RunOutcome, TableError>> = jobs
         .par_iter()
         .map(|&(t, c, phase)| {
             let test = &plan.tests[t];
@@ -449,8 +457,11 @@ pub fn run_cases(
                     min_rail_v: r.min_rail_v,
                     restore_limit_s: r.restore_limit_s,
                 })
-                .map_err(|e: ScenarioError| {
-                    format!("test {} at {phase}° (case {}): {e}", test.name, c + 1)
+                .map_err(|e: ScenarioError| TableError::Test {
+                    test: test.name.clone(),
+                    phase_deg: phase,
+                    case: c + 1,
+                    source: e,
                 });
             done();
             run
@@ -516,7 +527,7 @@ pub fn screen_values(
     plan: &Plan,
     keep: usize,
     done: &(dyn Fn() + Sync),
-) -> Result<Screening, String> {
+) -> Result<Screening, TableError> {
     let circuit = source.circuit;
     let mut first_phase = plan.clone();
     first_phase.phases.truncate(1);
@@ -524,8 +535,7 @@ pub fn screen_values(
     let measured: Vec<Vec<Quantity>> = cases
         .par_iter()
         .map(|case| {
-            let (c, s) =
-                settle_case(source, options, case).map_err(|e| format!("screening, {e}"))?;
+            let (c, s) = settle_case(source, options, case)?;
             let rows = run_cases(&[(&s, &c)], &first_phase, done)?;
             let thresholds = if plan.thresholds {
                 // A failed search leaves the thresholds missing: their change counts fully.
@@ -537,7 +547,7 @@ pub fn screen_values(
             };
             Ok(screening_quantities(&rows, thresholds.as_ref()))
         })
-        .collect::<Result<_, String>>()?;
+        .collect::<Result<_, TableError>>()?;
     let effects = crate::tolerance::rank(&circuit.tolerances, &measured, keep);
     let held: Vec<bool> = circuit
         .tolerances
@@ -568,11 +578,17 @@ fn settle_case(
     source: Source<'_>,
     options: &EventOptions,
     case: &crate::tolerance::Case,
-) -> Result<(Circuit, Settled), String> {
+) -> Result<(Circuit, Settled), TableError> {
     let c = crate::circuit_file::parse_circuit_with(source.text, source.path, &case.values)
-        .map_err(|e| format!("{}: {e}", case.label))?;
-    let s = crate::scenario::settle(&c, options)
-        .map_err(|e| format!("{} ({}): {e}", source.path, case.label))?;
+        .map_err(|e| TableError::CaseFile {
+            case: case.label.clone(),
+            source: Box::new(e),
+        })?;
+    let s = crate::scenario::settle(&c, options).map_err(|e| TableError::CaseSettle {
+        path: source.path.to_string(),
+        case: case.label.clone(),
+        source: e,
+    })?;
     Ok((c, s))
 }
 
@@ -624,19 +640,87 @@ pub struct Source<'a> {
     pub circuit: &'a Circuit,
 }
 
+/// Which tolerance cases a table was asked to run.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum CaseKind {
+    /// Every corner.
+    Corners,
+    /// Monte Carlo samples.
+    MonteCarlo,
+}
+
 /// Why a table could not be built.
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum TableError {
-    /// The request does not fit the circuit (tolerance cases asked of a circuit without
-    /// tolerances, a screening count out of range, too many values for corners).
-    #[error("{0}")]
-    Request(String),
+    /// Tolerance cases asked of a circuit without tolerances.
+    #[error("{path} has no values with a tolerance (docs/circuit-format.md)")]
+    NoTolerances {
+        /// What was asked.
+        kind: CaseKind,
+        /// The circuit.
+        path: String,
+    },
+    /// A screening count out of range.
+    #[error(
+        "keep from 1 to {} values for the corners, not {keep}",
+        crate::tolerance::MAX_CORNER_VALUES
+    )]
+    ScreenOutOfRange {
+        /// The count asked.
+        keep: usize,
+    },
+    /// Too many values for corners.
+    #[error(transparent)]
+    TooManyCorners(crate::tolerance::TooManyCorners),
     /// The nominal circuit did not power up to its operating state.
     #[error("{0}: {1}")]
     Settle(String, crate::scenario::ScenarioError),
-    /// A run, a tolerance case or a threshold search failed.
-    #[error("{0}")]
-    Run(String),
+    /// A test run failed.
+    #[error("test {test} at {phase_deg}° (case {case}): {source}")]
+    Test {
+        /// The test's name.
+        test: String,
+        /// The start phase, degrees.
+        phase_deg: f64,
+        /// The tolerance case, from 1 (the nominal circuit).
+        case: usize,
+        /// Why.
+        source: ScenarioError,
+    },
+    /// A tolerance case's values do not make a valid circuit.
+    #[error("{case}: {source}")]
+    CaseFile {
+        /// The case's label.
+        case: String,
+        /// The file's problems with those values.
+        source: Box<crate::circuit_file::CircuitFileError>,
+    },
+    /// A tolerance case did not power up to its operating state.
+    #[error("{path} ({case}): {source}")]
+    CaseSettle {
+        /// The circuit file.
+        path: String,
+        /// The case's label.
+        case: String,
+        /// Why.
+        source: ScenarioError,
+    },
+    /// The nominal circuit's static thresholds could not be found.
+    #[error("{path}: thresholds: {source}")]
+    Thresholds {
+        /// The circuit file.
+        path: String,
+        /// Why.
+        source: ScenarioError,
+    },
+    /// A longest ride-through search met a point that failed.
+    #[error("{path}: longest ride-through: {source}")]
+    RideThrough {
+        /// The circuit file.
+        path: String,
+        /// The point that failed.
+        source: crate::sweep::PointFailed,
+    },
 }
 
 /// Builds the whole table: settles the protector (and every tolerance case), screens the
@@ -659,19 +743,18 @@ pub fn build(
     let n_values = circuit.tolerances.len();
     let asked = match cases {
         Cases::Nominal => None,
-        Cases::Corners { .. } => Some("--corners"),
-        Cases::MonteCarlo { .. } => Some("--monte-carlo"),
+        Cases::Corners { .. } => Some(CaseKind::Corners),
+        Cases::MonteCarlo { .. } => Some(CaseKind::MonteCarlo),
     };
-    if let (Some(what), 0) = (asked, n_values) {
-        return Err(TableError::Request(format!(
-            "{what}: {path} has no values with a tolerance (docs/circuit-format.md)"
-        )));
+    if let (Some(kind), 0) = (asked, n_values) {
+        return Err(TableError::NoTolerances {
+            kind,
+            path: path.to_string(),
+        });
     }
     if let Cases::Corners { screen: Some(k) } = cases {
         if k == 0 || k > MAX_CORNER_VALUES {
-            return Err(TableError::Request(format!(
-                "--screen {k}: keep from 1 to {MAX_CORNER_VALUES} values for the corners"
-            )));
+            return Err(TableError::ScreenOutOfRange { keep: k });
         }
     }
     let settled = crate::scenario::settle(circuit, options)
@@ -684,8 +767,7 @@ pub fn build(
             if keep < n_values {
                 let per_case = plan.tests.len() + usize::from(plan.thresholds);
                 progress.stage("screening", 2 * n_values * per_case);
-                screening = screen_values(source, options, plan, keep, &|| progress.done())
-                    .map_err(TableError::Run)?;
+                screening = screen_values(source, options, plan, keep, &|| progress.done())?;
                 let kept: Vec<usize> = circuit
                     .tolerances
                     .iter()
@@ -699,7 +781,7 @@ pub fn build(
                     .map(|(i, _)| i)
                     .collect();
                 let cases = tolerance::corners_of(&circuit.tolerances, &kept)
-                    .map_err(|e| TableError::Request(format!("--corners: {e}")))?;
+                    .map_err(TableError::TooManyCorners)?;
                 let description = format!(
                     "{} tolerance cases (nominal and every corner of the {keep} value{} kept \
                      by screening all {n_values}; the others as written)",
@@ -708,8 +790,8 @@ pub fn build(
                 );
                 (cases, description)
             } else {
-                let cases = tolerance::corners(&circuit.tolerances)
-                    .map_err(|e| TableError::Request(format!("--corners: {e}")))?;
+                let cases =
+                    tolerance::corners(&circuit.tolerances).map_err(TableError::TooManyCorners)?;
                 let description = format!(
                     "{} tolerance cases (nominal and every corner of {n_values} values)",
                     cases.len()
@@ -730,8 +812,7 @@ pub fn build(
     let extra: Vec<(Circuit, Settled)> = cases[1..]
         .par_iter()
         .map(|case| settle_case(source, options, case))
-        .collect::<Result<_, String>>()
-        .map_err(TableError::Run)?;
+        .collect::<Result<_, TableError>>()?;
     let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
     case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
     let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
@@ -747,7 +828,10 @@ pub fn build(
             match found {
                 Ok(t) => all_thresholds.push(t),
                 Err(e) if k == 0 => {
-                    return Err(TableError::Run(format!("{path}: thresholds: {e}")))
+                    return Err(TableError::Thresholds {
+                        path: path.to_string(),
+                        source: e,
+                    })
                 }
                 Err(e) => notes.push(format!(
                     "{}: the static thresholds could not be found ({e}); this case is left \
@@ -757,8 +841,7 @@ pub fn build(
             }
         }
     }
-    let rows = run_cases(&case_refs, plan, &|| progress.done())
-        .map_err(|e| TableError::Run(format!("{path}: {e}")))?;
+    let rows = run_cases(&case_refs, plan, &|| progress.done())?;
     let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
     // The longest ride-through per level, on the nominal circuit; the plan's own dips at
     // those levels narrow the first bracket (only without tolerance cases, whose rows mix
@@ -784,10 +867,12 @@ pub fn build(
                 DEFAULT_EDGE_S,
             );
             progress.done();
-            b.map_err(|e| format!("{path}: longest ride-through: {e}"))
+            b.map_err(|e| TableError::RideThrough {
+                path: path.to_string(),
+                source: e,
+            })
         })
-        .collect::<Result<Vec<_>, String>>()
-        .map_err(TableError::Run)?;
+        .collect::<Result<Vec<_>, TableError>>()?;
     let table = Table {
         circuit: circuit.title.clone(),
         plan: plan.title.clone(),
@@ -1409,7 +1494,7 @@ pub fn html_report(
     circuit: &Circuit,
     map: &ReportMap,
     progress: &dyn Progress,
-) -> Result<String, String> {
+) -> Result<String, crate::plot::PlotError> {
     let mut figures: Vec<(String, String)> = Vec::new();
     let grid = map.grid(settled.frequency_hz);
     if !grid.points().is_empty() {

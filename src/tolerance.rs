@@ -28,23 +28,31 @@ pub fn nominal() -> Case {
 /// The most values whose corners are run in full (2^8 = 256 corners).
 pub const MAX_CORNER_VALUES: usize = 8;
 
+/// Corners asked of more values than are run in full.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error(
+    "{count} values with a tolerance make 2^{count} corners; corners are run for at most \
+     {MAX_CORNER_VALUES} values: screen them, use Monte Carlo, or remove the tolerances of \
+     the values that matter least"
+)]
+pub struct TooManyCorners {
+    /// How many values were asked.
+    pub count: usize,
+}
+
 /// The nominal case and every corner: 2^n cases for n toleranced values, corner k taking
 /// value i at its upper limit when bit i of k is set.
-pub fn corners(tolerances: &[Tolerance]) -> Result<Vec<Case>, String> {
+pub fn corners(tolerances: &[Tolerance]) -> Result<Vec<Case>, TooManyCorners> {
     let all: Vec<usize> = (0..tolerances.len()).collect();
     corners_of(tolerances, &all)
 }
 
 /// The nominal case and every corner of the values `keep` (indices into `tolerances`), the
 /// others as written: corner k takes `keep[i]` at its upper limit when bit i of k is set.
-pub fn corners_of(tolerances: &[Tolerance], keep: &[usize]) -> Result<Vec<Case>, String> {
+pub fn corners_of(tolerances: &[Tolerance], keep: &[usize]) -> Result<Vec<Case>, TooManyCorners> {
     let n = keep.len();
     if n > MAX_CORNER_VALUES {
-        return Err(format!(
-            "{n} values with a tolerance make 2^{n} corners; corners are run for at most \
-             {MAX_CORNER_VALUES} values: screen them (--screen), use Monte Carlo, or remove \
-             the tolerances of the values that matter least"
-        ));
+        return Err(TooManyCorners { count: n });
     }
     let mut cases = vec![nominal()];
     for k in 0..(1usize << n) {

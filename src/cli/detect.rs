@@ -70,7 +70,7 @@ pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
     let thresholds = thresholds_of(&args.input);
     let mut detector = Detector::new(rate, declared, frequency, thresholds.clone());
     for v in scaled.volts() {
-        detector.push(v?);
+        detector.push(v.map_err(|e| e.to_string())?);
     }
     let d = detector.finish();
     if let Some(path) = &args.plot {

@@ -56,6 +56,13 @@ impl Failure {
     }
 }
 
+/// A figure that could not be drawn: the run's answer could not be given in full.
+impl From<sagtrip::plot::PlotError> for Failure {
+    fn from(e: sagtrip::plot::PlotError) -> Self {
+        Failure::Run(e.to_string())
+    }
+}
+
 /// Any message built while reading the input is an input mistake.
 impl From<String> for Failure {
     fn from(message: String) -> Self {
@@ -255,13 +262,14 @@ pub(crate) fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
 /// Writes a plot as SVG or PNG by the file's extension, whole or not at all.
 pub(crate) fn write_plot(
     path: &Path,
-    png: impl FnOnce(&Path) -> Result<(), String>,
-    svg: impl FnOnce() -> Result<String, String>,
+    png: impl FnOnce(&Path) -> Result<(), sagtrip::plot::PlotError>,
+    svg: impl FnOnce() -> Result<String, sagtrip::plot::PlotError>,
 ) -> Result<(), String> {
     match path.extension().and_then(|e| e.to_str()) {
         Some("png") => {
             let temp = path.with_extension("png.partial.png");
             png(&temp)
+                .map_err(|e| e.to_string())
                 .and_then(|()| std::fs::rename(&temp, path).map_err(|e| e.to_string()))
                 .map_err(|e| {
                     let _ = std::fs::remove_file(&temp);
@@ -269,7 +277,7 @@ pub(crate) fn write_plot(
                 })
         }
         Some("svg") => {
-            let text = svg()?;
+            let text = svg().map_err(|e| e.to_string())?;
             write_atomic(path, |w| w.write_all(text.as_bytes()))
                 .map_err(|e| format!("cannot write plot {}: {e}", path.display()))
         }

@@ -81,7 +81,13 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
         .replay_with_progress(scaled.volts(), rate, thresholds.clone(), probes, &mut |s| {
             bar.set_position(s as u64)
         })
-        .map_err(|e| format!("{}: {e}", args.input.recording.display()));
+        .map_err(|e| {
+            let message = format!("{}: {e}", args.input.recording.display());
+            match e {
+                sagtrip::scenario::ReplayError::Simulation(_) => Failure::Run(message),
+                _ => Failure::Input(message),
+            }
+        });
     bar.finish_and_clear();
     let replay = replay?;
     if let Some(path) = &args.plot {

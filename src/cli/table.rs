@@ -109,7 +109,7 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
             parse_plan(&text, &path.display().to_string(), frequency_hint)
                 .map_err(|e| e.to_string())?
         }
-        None => default_plan(args.class, frequency_hint)?,
+        None => default_plan(args.class, frequency_hint).map_err(|e| format!("--class: {e}"))?,
     };
     if let Some(text) = &args.phases {
         plan.phases = text
@@ -166,9 +166,22 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
     use sagtrip::table::TableError;
     let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)
         .map_err(|e| match e {
-            TableError::Request(m) => Failure::Input(m),
+            TableError::NoTolerances { kind, .. } => Failure::Input(format!(
+                "{}: {e}",
+                match kind {
+                    sagtrip::table::CaseKind::Corners => "--corners",
+                    sagtrip::table::CaseKind::MonteCarlo => "--monte-carlo",
+                }
+            )),
+            TableError::ScreenOutOfRange { keep } => {
+                Failure::Input(format!("--screen {keep}: {e}"))
+            }
+            TableError::TooManyCorners(_) => Failure::Input(format!(
+                "--corners: {e} (--screen K keeps the K that matter most)"
+            )),
             TableError::Settle(path, e) => scenario_failure(&path, e),
-            TableError::Run(m) => Failure::Run(m),
+            TableError::CaseFile { .. } => Failure::Input(format!("{name}: {e}")),
+            e => Failure::Run(e.to_string()),
         })?;
     let bar = &progress.0;
     let text = markdown(&table);

@@ -253,7 +253,7 @@ pub fn refine_boundary(
     (low_pct, high_pct): (f64, f64),
     resolution_pct: f64,
     edge_s: f64,
-) -> Result<BoundaryPoint, String> {
+) -> Result<BoundaryPoint, PointFailed> {
     let swell = low_pct >= 100.0;
     let trips_at = |level: f64| trips_anywhere(settled, circuit, level, duration_s, phases, edge_s);
     // `tripping` is the end that trips, `riding` the end that rides through.
@@ -322,6 +322,21 @@ pub fn duration_resolution_s(duration_s: f64) -> f64 {
     (0.01 * duration_s).max(0.5e-3)
 }
 
+/// A point a boundary search needed that could not be simulated: the search stops (a
+/// failure is never taken for a ride-through).
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error("{level_pct}% for {duration_s} s at {phase_deg} deg: {reason}")]
+pub struct PointFailed {
+    /// Level, percent of nominal.
+    pub level_pct: f64,
+    /// Duration, seconds.
+    pub duration_s: f64,
+    /// Start phase angle, degrees.
+    pub phase_deg: f64,
+    /// Why the run failed.
+    pub reason: String,
+}
+
 /// Whether any phase trips (or chatters) at (`level_pct`, `duration_s`); a point that
 /// cannot be simulated is an error, never a ride-through.
 fn trips_anywhere(
@@ -331,19 +346,18 @@ fn trips_anywhere(
     duration_s: f64,
     phases: &[f64],
     edge_s: f64,
-) -> Result<bool, String> {
+) -> Result<bool, PointFailed> {
     let points: Vec<Point> = phases
         .par_iter()
         .map(|&p| run_point(settled, circuit, level_pct, duration_s, p, edge_s))
         .collect();
     if let Some(p) = points.iter().find(|p| p.outcome == Outcome::Failed) {
-        return Err(format!(
-            "{}% for {} s at {} deg: {}",
+        return Err(PointFailed {
             level_pct,
             duration_s,
-            p.phase_deg,
-            p.failure.as_deref().unwrap_or("failed")
-        ));
+            phase_deg: p.phase_deg,
+            reason: p.failure.clone().unwrap_or_else(|| "failed".into()),
+        });
     }
     Ok(points
         .iter()
@@ -364,7 +378,7 @@ pub fn refine_duration_boundary(
     (shortest_s, longest_s): (f64, f64),
     known: &[Cell],
     edge_s: f64,
-) -> Result<DurationBoundaryPoint, String> {
+) -> Result<DurationBoundaryPoint, PointFailed> {
     let mut runs = 0;
     let mut test = |d: f64| {
         runs += phases.len();

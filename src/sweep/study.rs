@@ -73,22 +73,22 @@ impl StudyProgress for () {
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum StudyError {
     /// A level boundary search met a point that could not be simulated.
-    #[error("{side} boundary at {duration_s} s: {message}")]
+    #[error("{side} boundary at {duration_s} s: {failed}")]
     Boundary {
         /// `dip` or `swell`.
         side: String,
         /// The duration searched, seconds.
         duration_s: f64,
-        /// Why.
-        message: String,
+        /// The point that failed.
+        failed: super::PointFailed,
     },
     /// A longest ride-through search met a point that could not be simulated.
-    #[error("longest ride-through at {level_pct}%: {message}")]
+    #[error("longest ride-through at {level_pct}%: {failed}")]
     RideThrough {
         /// The level searched, percent.
         level_pct: f64,
-        /// Why.
-        message: String,
+        /// The point that failed.
+        failed: super::PointFailed,
     },
 }
 
@@ -182,10 +182,10 @@ pub fn run_study(
             settings.resolution_pct,
             settings.edge_s,
         )
-        .map_err(|message| StudyError::Boundary {
+        .map_err(|failed| StudyError::Boundary {
             side: side.to_string(),
             duration_s: d,
-            message,
+            failed,
         })?;
         if let Some(j) = journal {
             j.boundary(side, &b);
@@ -212,9 +212,9 @@ pub fn run_study(
             &known,
             settings.edge_s,
         )
-        .map_err(|message| StudyError::RideThrough {
+        .map_err(|failed| StudyError::RideThrough {
             level_pct: level,
-            message,
+            failed,
         })?;
         if let Some(j) = journal {
             j.duration(&b);
