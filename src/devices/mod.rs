@@ -30,8 +30,10 @@ pub(crate) use relay::Relay;
 pub use relay::RelayState;
 pub(crate) use timer::Timer;
 
-use crate::engine::{ContactAction, EventKind, Scheduled};
+pub mod events;
+
 use crate::waveform::Waveform;
+use events::{ContactAction, EventKind, Scheduled};
 
 /// How time derivatives are discretised for one solve.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]

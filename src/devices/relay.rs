@@ -9,9 +9,9 @@
 //! `(2k + 1) bounce_time / (2 n)`, closed again at `(2k + 2) bounce_time / (2 n)` after
 //! making. A new armature change cancels whatever of the previous sequence is still pending.
 
+use super::events::{ContactAction, EventKind, Scheduled};
 use super::Mna;
 use crate::circuit::RelayParams;
-use crate::engine::{ContactAction, EventKind, Scheduled};
 
 #[derive(Clone, Debug)]
 pub(crate) struct Relay {

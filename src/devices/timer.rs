@@ -11,9 +11,9 @@
 //! engine locates every flip-flop change. The supply draws `supply_current` once the supply
 //! exceeds 2 V (ramped in from 0 V).
 
+use super::events::EventKind;
 use super::Mna;
 use crate::circuit::TimerParams;
-use crate::engine::EventKind;
 
 #[derive(Clone, Debug)]
 pub(crate) struct Timer {
