@@ -164,15 +164,7 @@ impl Simulator {
                 }
                 continue;
             }
-            let mut h = state.step.min(self.settings.max_step_s);
-            let mut lands = false;
-            if h >= remaining * (1.0 - 1e-9) {
-                h = remaining;
-                lands = true;
-            } else if h > 0.5 * remaining {
-                h = 0.5 * remaining;
-            }
-
+            let (mut h, mut lands) = self.step_toward(state, remaining);
             let at_breakpoint = lands && stop == breakpoint;
             if let Err(f) = self.solve_step(state, h, method, at_breakpoint) {
                 state.stats.newton_failures += 1;
@@ -183,51 +175,14 @@ impl Simulator {
                 state.step = h / 8.0;
                 continue;
             }
-
-            // Before the error estimate is available (just after a restart) grow fast: the
-            // restart step is deliberately tiny.
-            let mut growth = if h < self.settings.corner_step_s {
-                4.0
-            } else {
-                2.0
+            let Some(growth) = self.error_control(state, h, method)? else {
+                continue;
             };
-            if method == Method::Trapezoidal && state.points_since_break >= 3 {
-                let err = self.truncation_error(state, h);
-                let factor = 0.9 * err.max(1e-12).powf(-1.0 / 3.0);
-                if err > 1.0 {
-                    state.stats.rejected_steps += 1;
-                    state.just_rejected = true;
-                    state.step = h * factor.clamp(0.1, 0.5);
-                    if state.step < self.settings.min_step_s {
-                        let ctx = self.context(state.time + h, h, method);
-                        return Err(self.failure(NewtonFailure::Diverged, &ctx));
-                    }
-                    continue;
-                }
-                // Right after a rejection the estimate is least trusted: do not grow.
-                growth = factor.min(if state.just_rejected { 1.0 } else { 2.0 });
-                state.just_rejected = false;
-            }
-
-            // A device changing region inside a long step: shorten the step around the corner.
             let corner = self.settings.corner_step_s > 0.0 && self.region_changed(state);
             if corner && h > self.settings.corner_step_s * (1.0 + 1e-9) {
-                state.stats.rejected_steps += 1;
-                state.just_rejected = true;
-                // Step to just before the corner (located on the straight line between the
-                // two solutions), then through it with a corner-length step.
-                let corner_step = self.settings.corner_step_s;
-                let before = self.corner_fraction(state) * h - 0.5 * corner_step;
-                if before > corner_step {
-                    state.step = before;
-                    state.corner_ahead = true;
-                } else {
-                    state.step = corner_step;
-                    state.corner_ahead = false;
-                }
+                self.step_to_corner(state, h);
                 continue;
             }
-
             let mut transition = false;
             if !self.network.discrete_devices.is_empty()
                 && self.crossing(&self.ws.x_sol, &state.modes) > 0.0
@@ -242,30 +197,119 @@ impl Simulator {
                 lands = false;
                 transition = true;
             }
-
             let new_time = if lands { stop } else { state.time + h };
             self.commit(state, h, method, new_time);
             observer.step(&self.network, state);
-
-            if transition {
-                self.apply_crossings(state, observer);
-                self.restart(state);
-            } else if lands && stop == breakpoint {
-                self.apply_due(state, observer);
-                self.restart(state);
-            } else if corner {
-                // Restart with a damped step so the trapezoidal rule does not carry the
-                // pre-corner current across it.
-                state.points_since_break = 1;
-                state.step = self.settings.corner_step_s;
-                state.stats.restarts += 1;
-            } else if state.corner_ahead {
-                state.step = self.settings.corner_step_s;
-            } else {
-                state.step = h * growth;
-            }
-            state.corner_ahead = false;
+            let at_breakpoint = lands && stop == breakpoint;
+            self.after_commit(
+                state,
+                observer,
+                h,
+                growth,
+                transition,
+                at_breakpoint,
+                corner,
+            );
         }
         Ok(())
+    }
+
+    /// The next step's length toward a stop `remaining` seconds away, and whether it lands
+    /// on the stop: the proposed step (at most the maximum), the whole remainder when it
+    /// would reach it, or half of it when it would leave a sliver.
+    fn step_toward(&self, state: &SimState, remaining: f64) -> (f64, bool) {
+        let h = state.step.min(self.settings.max_step_s);
+        if h >= remaining * (1.0 - 1e-9) {
+            (remaining, true)
+        } else if h > 0.5 * remaining {
+            (0.5 * remaining, false)
+        } else {
+            (h, false)
+        }
+    }
+
+    /// The truncation-error test of a solved step of length `h`: the growth factor for the
+    /// next step, or `None` when the step is rejected (the next attempt already
+    /// shortened). Before the error estimate is available (just after a restart) the step
+    /// grows fast: the restart step is deliberately tiny.
+    fn error_control(
+        &self,
+        state: &mut SimState,
+        h: f64,
+        method: Method,
+    ) -> Result<Option<f64>, SimError> {
+        let mut growth = if h < self.settings.corner_step_s {
+            4.0
+        } else {
+            2.0
+        };
+        if method == Method::Trapezoidal && state.points_since_break >= 3 {
+            let err = self.truncation_error(state, h);
+            let factor = 0.9 * err.max(1e-12).powf(-1.0 / 3.0);
+            if err > 1.0 {
+                state.stats.rejected_steps += 1;
+                state.just_rejected = true;
+                state.step = h * factor.clamp(0.1, 0.5);
+                if state.step < self.settings.min_step_s {
+                    let ctx = self.context(state.time + h, h, method);
+                    return Err(self.failure(NewtonFailure::Diverged, &ctx));
+                }
+                return Ok(None);
+            }
+            // Right after a rejection the estimate is least trusted: do not grow.
+            growth = factor.min(if state.just_rejected { 1.0 } else { 2.0 });
+            state.just_rejected = false;
+        }
+        Ok(Some(growth))
+    }
+
+    /// Rejects a long step of length `h` inside which a device changed region: the next
+    /// attempt steps to just before the corner (located on the straight line between the
+    /// two solutions), then through it with a corner-length step.
+    fn step_to_corner(&mut self, state: &mut SimState, h: f64) {
+        state.stats.rejected_steps += 1;
+        state.just_rejected = true;
+        let corner_step = self.settings.corner_step_s;
+        let before = self.corner_fraction(state) * h - 0.5 * corner_step;
+        if before > corner_step {
+            state.step = before;
+            state.corner_ahead = true;
+        } else {
+            state.step = corner_step;
+            state.corner_ahead = false;
+        }
+    }
+
+    /// After a committed step of length `h`: the discrete changes it crossed or landed on,
+    /// the restarts they call for, and the next step's length.
+    #[allow(clippy::too_many_arguments)]
+    fn after_commit<O: Observer + ?Sized>(
+        &mut self,
+        state: &mut SimState,
+        observer: &mut O,
+        h: f64,
+        growth: f64,
+        transition: bool,
+        at_breakpoint: bool,
+        corner: bool,
+    ) {
+        if transition {
+            self.apply_crossings(state, observer);
+            self.restart(state);
+        } else if at_breakpoint {
+            self.apply_due(state, observer);
+            self.restart(state);
+        } else if corner {
+            // Restart with a damped step so the trapezoidal rule does not carry the
+            // pre-corner current across it.
+            state.points_since_break = 1;
+            state.step = self.settings.corner_step_s;
+            state.stats.restarts += 1;
+        } else if state.corner_ahead {
+            state.step = self.settings.corner_step_s;
+        } else {
+            state.step = h * growth;
+        }
+        state.corner_ahead = false;
     }
 }
