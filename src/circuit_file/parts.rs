@@ -373,15 +373,31 @@ impl Reader<'_> {
             );
             return None;
         }
-        let get = |n: &str| -> f64 {
-            values.get(n).map(|l| l.value).unwrap_or_else(|| {
-                fields
-                    .iter()
-                    .find(|f| f.name == n)
-                    .and_then(|f| f.default)
-                    .unwrap_or(0.0)
-            })
+        let family = match kind {
+            "resistor" | "capacitor" | "inductor" | "transformer" | "voltage-source"
+            | "current-source" => Self::passive_spec,
+            "diode" | "bridge" | "led" | "nmos" | "pmos" | "npn" | "pnp" => {
+                Self::semiconductor_spec
+            }
+            "switch" | "comparator" | "regulator" | "relay" | "timer" => Self::control_spec,
+            _ => return None,
         };
+        family(self, kind, values, fields, waveform, name_span, path)
+    }
+
+    /// The model specification of a part of this family: resistors, capacitors, inductors, transformers and sources. `None` (with the problem
+    /// noted) when its values contradict each other.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn passive_spec(
+        &mut self,
+        kind: &str,
+        values: &HashMap<String, Located>,
+        fields: &[Field],
+        waveform: Option<Waveform>,
+        _name_span: Range<usize>,
+        _path: &str,
+    ) -> Option<PartSpec> {
+        let get = |n: &str| value_or_default(values, fields, n);
         let opt = |n: &str| values.get(n).map(|l| l.value);
         Some(match kind {
             "resistor" => PartSpec::Resistor {
@@ -405,6 +421,25 @@ impl Reader<'_> {
             }),
             "voltage-source" => PartSpec::VoltageSource(waveform?),
             "current-source" => PartSpec::CurrentSource(waveform?),
+            _ => return None,
+        })
+    }
+
+    /// The model specification of a part of this family: diodes, bridges, LEDs, MOSFETs and bipolar transistors. `None` (with the problem
+    /// noted) when its values contradict each other.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn semiconductor_spec(
+        &mut self,
+        kind: &str,
+        values: &HashMap<String, Located>,
+        fields: &[Field],
+        _waveform: Option<Waveform>,
+        name_span: Range<usize>,
+        path: &str,
+    ) -> Option<PartSpec> {
+        let get = |n: &str| value_or_default(values, fields, n);
+        let opt = |n: &str| values.get(n).map(|l| l.value);
+        Some(match kind {
             "diode" | "bridge" => {
                 let breakdown = opt("breakdown_voltage").map(|voltage| {
                     let current = get("breakdown_current");
@@ -454,6 +489,42 @@ impl Reader<'_> {
                     }),
                 })
             }
+            "nmos" | "pmos" => PartSpec::Mosfet(MosfetParams {
+                polarity: if kind == "nmos" { 1.0 } else { -1.0 },
+                threshold_voltage: get("threshold_voltage"),
+                transconductance: get("transconductance"),
+                channel_length_modulation: get("channel_length_modulation"),
+                body_diode: (get("body_diode") != 0.0).then(|| DiodeParams {
+                    saturation_current: get("body_diode_saturation_current"),
+                    emission_coefficient: get("body_diode_emission_coefficient"),
+                    series_resistance: 0.0,
+                    breakdown: None,
+                }),
+            }),
+            "npn" | "pnp" => PartSpec::Bipolar(BipolarParams {
+                polarity: if kind == "npn" { 1.0 } else { -1.0 },
+                saturation_current: get("saturation_current"),
+                forward_beta: get("forward_beta"),
+                reverse_beta: get("reverse_beta"),
+            }),
+            _ => return None,
+        })
+    }
+
+    /// The model specification of a part of this family: switches, comparators, regulators, relays and timers. `None` (with the problem
+    /// noted) when its values contradict each other.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn control_spec(
+        &mut self,
+        kind: &str,
+        values: &HashMap<String, Located>,
+        fields: &[Field],
+        _waveform: Option<Waveform>,
+        name_span: Range<usize>,
+        path: &str,
+    ) -> Option<PartSpec> {
+        let get = |n: &str| value_or_default(values, fields, n);
+        Some(match kind {
             "switch" => {
                 let (on, off) = (get("on_voltage"), get("off_voltage"));
                 if off > on {
@@ -479,24 +550,6 @@ impl Reader<'_> {
                 response_time: get("response_time"),
                 input_offset: get("input_offset"),
                 hysteresis: get("hysteresis"),
-            }),
-            "nmos" | "pmos" => PartSpec::Mosfet(MosfetParams {
-                polarity: if kind == "nmos" { 1.0 } else { -1.0 },
-                threshold_voltage: get("threshold_voltage"),
-                transconductance: get("transconductance"),
-                channel_length_modulation: get("channel_length_modulation"),
-                body_diode: (get("body_diode") != 0.0).then(|| DiodeParams {
-                    saturation_current: get("body_diode_saturation_current"),
-                    emission_coefficient: get("body_diode_emission_coefficient"),
-                    series_resistance: 0.0,
-                    breakdown: None,
-                }),
-            }),
-            "npn" | "pnp" => PartSpec::Bipolar(BipolarParams {
-                polarity: if kind == "npn" { 1.0 } else { -1.0 },
-                saturation_current: get("saturation_current"),
-                forward_beta: get("forward_beta"),
-                reverse_beta: get("reverse_beta"),
             }),
             "regulator" => PartSpec::Regulator(RegulatorParams {
                 output_voltage: get("output_voltage"),
@@ -553,4 +606,15 @@ impl Reader<'_> {
             _ => return None,
         })
     }
+}
+
+/// A parameter's value, or its field's default (0 where it has none).
+fn value_or_default(values: &HashMap<String, Located>, fields: &[Field], n: &str) -> f64 {
+    values.get(n).map(|l| l.value).unwrap_or_else(|| {
+        fields
+            .iter()
+            .find(|f| f.name == n)
+            .and_then(|f| f.default)
+            .unwrap_or(0.0)
+    })
 }
