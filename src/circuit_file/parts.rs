@@ -44,11 +44,87 @@ impl Reader<'_> {
         };
 
         // Pins.
-        let pin_names = pin_names_of(&kind).unwrap_or(&[]);
+        let mut pins = self.part_pins(
+            &kind,
+            &path,
+            name.span(),
+            table.get("pins"),
+            nodes,
+            problems_before,
+        );
+
+        // Parameter set.
+        let mut values = self.set_values(&kind, &path, &part_name, table.get("uses"), sets);
+        let mut order = Vec::new();
+
+        // Parameters written on the part override the set's.
+        let is_source = kind == "voltage-source" || kind == "current-source";
+        let reserved = ["kind", "pins", "uses"];
+        let waveform_keys = ["dc", "sine", "step"];
+        self.parameters(
+            table.iter().filter(|(k, _)| {
+                let k = k.get_ref().as_ref();
+                !(reserved.contains(&k) || is_source && waveform_keys.contains(&k))
+            }),
+            fields_of(&kind),
+            &path,
+            &format!("a {kind}"),
+            &mut values,
+            &mut order,
+        );
+
+        let waveform = if is_source {
+            self.waveform(table, name.span(), &path, &kind)
+        } else {
+            None
+        };
+
+        if self.problems.len() > problems_before {
+            return None;
+        }
+        // A relay's normally-closed contact may be left unconnected.
+        let normally_closed_absent = kind == "relay" && pins[4].is_none();
+        if normally_closed_absent {
+            pins[4] = Some((0, 0..0));
+        }
+        let mut spec = self.spec(&kind, &values, waveform, name.span(), &path)?;
+        if let PartSpec::Relay(r) = &mut spec {
+            r.normally_closed_connected = !normally_closed_absent;
+        }
+        let origin = PartOrigin {
+            name_span: name.span(),
+            pin_spans: pins
+                .iter()
+                .map(|p| p.as_ref().map_or(0..0, |p| p.1.clone()))
+                .collect(),
+        };
+        Some((
+            Part {
+                name: part_name,
+                pins: pins.into_iter().map(|p| p.map_or(0, |p| p.0)).collect(),
+                spec,
+            },
+            origin,
+        ))
+    }
+
+    /// A part's pins (`pins` as a list or a table), each a node and where it was written;
+    /// a missing or extra pin is a problem. A relay may leave its normally-closed pin out.
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn part_pins(
+        &mut self,
+        kind: &str,
+        path: &str,
+        name_span: Range<usize>,
+        pins_value: Option<&Spanned<DeValue<'_>>>,
+        nodes: &mut Vec<String>,
+        problems_before: usize,
+    ) -> Vec<Option<(NodeId, Range<usize>)>> {
+        let pin_names = pin_names_of(kind).unwrap_or(&[]);
         let mut pins: Vec<Option<(NodeId, Range<usize>)>> = vec![None; pin_names.len()];
-        match table.get("pins") {
+        match pins_value {
             None => self.problem(
-                name.span(),
+                name_span.clone(),
                 &format!("{path}.pins"),
                 format!("missing `pins` ({})", pin_names.join(", ")),
             ),
@@ -126,17 +202,27 @@ impl Reader<'_> {
                 ),
             },
         }
+        pins
+    }
 
-        // Parameter set.
+    /// The values of the parameter set a part `uses` (noting its use), or none; an
+    /// unknown set, or one of another family, is a problem.
+    pub(super) fn set_values(
+        &mut self,
+        kind: &str,
+        path: &str,
+        part_name: &str,
+        uses: Option<&Spanned<DeValue<'_>>>,
+        sets: &mut [(String, ParameterSet)],
+    ) -> HashMap<String, Located> {
         let mut values: HashMap<String, Located> = HashMap::new();
-        let mut order = Vec::new();
-        if let Some(v) = table.get("uses") {
-            let family = family_of(&kind);
+        if let Some(v) = uses {
+            let family = family_of(kind);
             match (v.get_ref().as_str(), family) {
                 (Some(set_name), Some(family)) => {
                     match sets.iter_mut().find(|(n, _)| n == set_name) {
                         Some((_, set)) if set.family == family => {
-                            set.used_by.push(part_name.clone());
+                            set.used_by.push(part_name.to_string());
                             values.extend(set.values.iter().map(|(k, l)| (k.clone(), l.clone())));
                         }
                         Some((_, set)) => {
@@ -182,56 +268,7 @@ impl Reader<'_> {
                 ),
             }
         }
-
-        // Parameters written on the part override the set's.
-        let is_source = kind == "voltage-source" || kind == "current-source";
-        let reserved = ["kind", "pins", "uses"];
-        let waveform_keys = ["dc", "sine", "step"];
-        self.parameters(
-            table.iter().filter(|(k, _)| {
-                let k = k.get_ref().as_ref();
-                !(reserved.contains(&k) || is_source && waveform_keys.contains(&k))
-            }),
-            fields_of(&kind),
-            &path,
-            &format!("a {kind}"),
-            &mut values,
-            &mut order,
-        );
-
-        let waveform = if is_source {
-            self.waveform(table, name.span(), &path, &kind)
-        } else {
-            None
-        };
-
-        if self.problems.len() > problems_before {
-            return None;
-        }
-        // A relay's normally-closed contact may be left unconnected.
-        let normally_closed_absent = kind == "relay" && pins[4].is_none();
-        if normally_closed_absent {
-            pins[4] = Some((0, 0..0));
-        }
-        let mut spec = self.spec(&kind, &values, waveform, name.span(), &path)?;
-        if let PartSpec::Relay(r) = &mut spec {
-            r.normally_closed_connected = !normally_closed_absent;
-        }
-        let origin = PartOrigin {
-            name_span: name.span(),
-            pin_spans: pins
-                .iter()
-                .map(|p| p.as_ref().map_or(0..0, |p| p.1.clone()))
-                .collect(),
-        };
-        Some((
-            Part {
-                name: part_name,
-                pins: pins.into_iter().map(|p| p.map_or(0, |p| p.0)).collect(),
-                spec,
-            },
-            origin,
-        ))
+        values
     }
 
     pub(super) fn waveform(
