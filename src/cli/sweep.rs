@@ -229,12 +229,22 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     )
     .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
     progress.finish();
-    let (grid, points, boundaries, durations_done) = (
-        study.grid,
-        result.points,
-        result.boundaries,
-        result.durations,
-    );
+    let all = sagtrip::sweep::journal::Contents {
+        points: result.points,
+        boundaries: result.boundaries,
+        durations: result.durations,
+    };
+    // The journal's files in their one order: a resumed or merged study gives the same.
+    drop(journal);
+    let (points, boundaries, durations_done) = match &args.out {
+        Some(dir) => {
+            let m = sagtrip::sweep::journal::finish(dir, settings, &study.grid, all)
+                .map_err(journal_failure)?;
+            (m.points, m.boundaries, m.durations)
+        }
+        None => sagtrip::sweep::journal::canonical(&study.grid, all),
+    };
+    let grid = study.grid;
     let wall = started.elapsed().as_secs_f64();
     report_sweep(
         &SweepReport {

@@ -277,17 +277,68 @@ pub fn merge(folders: &[PathBuf]) -> Result<Merged, JournalError> {
         durations_s: numbers("durations_s"),
         phases_deg: numbers("phases_deg"),
     };
-    let points = in_grid_order(&grid, &all.points);
-    all.durations
-        .sort_by(|a, b| a.level_pct.total_cmp(&b.level_pct));
+    let (points, boundaries, durations) = canonical(&grid, all);
     Ok(Merged {
         missing: grid.points().len().saturating_sub(points.len()),
         settings,
         grid,
         points,
-        boundaries: all.boundaries,
-        durations: all.durations,
+        boundaries,
+        durations,
     })
+}
+
+/// A study's results in their one order, whatever order they completed in: points in grid
+/// order, level boundary points by side then duration, the longest ride-through by level;
+/// each once (a result found twice, in overlapping folders, is kept once).
+pub fn canonical(
+    grid: &Grid,
+    all: Contents,
+) -> (
+    Vec<Point>,
+    Vec<(String, BoundaryPoint)>,
+    Vec<DurationBoundaryPoint>,
+) {
+    let points = in_grid_order(grid, &all.points);
+    let mut boundaries: Vec<(String, BoundaryPoint)> = Vec::new();
+    for (side, b) in all.boundaries {
+        if !boundaries
+            .iter()
+            .any(|(s, x)| *s == side && x.duration_s == b.duration_s)
+        {
+            boundaries.push((side, b));
+        }
+    }
+    boundaries.sort_by(|(s, a), (t, b)| s.cmp(t).then(a.duration_s.total_cmp(&b.duration_s)));
+    let mut durations: Vec<DurationBoundaryPoint> = Vec::new();
+    for d in all.durations {
+        if !durations.iter().any(|x| x.level_pct == d.level_pct) {
+            durations.push(d);
+        }
+    }
+    durations.sort_by(|a, b| a.level_pct.total_cmp(&b.level_pct));
+    (points, boundaries, durations)
+}
+
+/// Rewrites a finished study's journal files in their one order (see [`canonical`]), so
+/// that a resumed, a sharded and merged, and an uninterrupted study give the same files.
+pub fn finish(
+    dir: &Path,
+    settings: serde_json::Value,
+    grid: &Grid,
+    all: Contents,
+) -> Result<Merged, JournalError> {
+    let (points, boundaries, durations) = canonical(grid, all);
+    let merged = Merged {
+        missing: grid.points().len().saturating_sub(points.len()),
+        settings,
+        grid: grid.clone(),
+        points,
+        boundaries,
+        durations,
+    };
+    write_merged(dir, &merged)?;
+    Ok(merged)
 }
 
 /// Writes `points.csv`, `boundary.csv` and `duration-boundary.csv` of a merged sweep into

@@ -7,7 +7,7 @@ use crate::scenario::Settled;
 
 use super::journal::{Contents, Journal};
 use super::{
-    cells, refine_boundary, refine_duration_boundary, run_points, shard, BoundaryPoint,
+    refine_boundary, refine_duration_boundary, run_points, shard, BoundaryPoint,
     DurationBoundaryPoint, Grid, Point,
 };
 
@@ -193,7 +193,9 @@ pub fn run_study(
         boundaries.push((side.to_string(), b));
         progress.done();
     }
-    let known = cells(&points);
+    // The search starts from the range's ends, not from the map's cells: a shard holds
+    // only some of them, and a search from another bracket ends on other (equally valid)
+    // durations, so sharded and whole studies would differ.
     let range = (
         grid.durations_s
             .iter()
@@ -209,7 +211,7 @@ pub fn run_study(
             level,
             &grid.phases_deg,
             range,
-            &known,
+            &[],
             settings.edge_s,
         )
         .map_err(|failed| StudyError::RideThrough {
