@@ -965,3 +965,40 @@ fn every_report_with_numbers_carries_the_caution() {
     let _: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert!(String::from_utf8_lossy(&out.stderr).contains(sagtrip::CAUTION));
 }
+
+#[test]
+fn a_sweep_does_not_resume_over_an_edited_circuit() {
+    // The same path, other contents: the old points must not be joined to the new circuit.
+    let dir = temp_path("resume-edited");
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let circuit = dir.join("guard.toml");
+    std::fs::write(&circuit, sagtrip::builtin::REFERENCE_GUARD).unwrap();
+    let out = dir.join("study");
+    let args = [
+        "sweep",
+        "--circuit",
+        circuit.to_str().unwrap(),
+        "--levels",
+        "0:40:40",
+        "--durations",
+        "1cyc:100ms",
+        "--duration-count",
+        "2",
+        "--phases",
+        "0",
+        "--no-refine",
+        "--quiet",
+        "--out",
+        out.to_str().unwrap(),
+    ];
+    sagtrip_ok(&args);
+    let mut resume = args.to_vec();
+    resume.push("--resume");
+    sagtrip_ok(&resume);
+    let edited = sagtrip::builtin::REFERENCE_GUARD.replace("\"22mA\"", "\"21mA\"");
+    assert_ne!(edited, sagtrip::builtin::REFERENCE_GUARD);
+    std::fs::write(&circuit, edited).unwrap();
+    let err = sagtrip_fails(&resume, "other settings");
+    assert!(err.contains("--resume needs the same circuit"), "{err}");
+}

@@ -150,7 +150,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         ],
         &[args.circuit.as_deref()],
     )?;
-    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let (circuit, name, text) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let mut levels = level_range(&args.levels, "levels")?;
     if levels.iter().any(|&l| l >= 100.0) {
@@ -209,7 +209,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         shard: (k, n),
         edge_s: DEFAULT_EDGE_S,
     };
-    let settings = study.journal_settings(&name, &circuit.title, settled.rms, frequency);
+    let settings = study.journal_settings(&name, &circuit.title, &text, settled.rms, frequency);
     let (journal, done) = match &args.out {
         Some(dir) => {
             let (j, c) = sagtrip::sweep::journal::Journal::open(dir, &settings, args.resume)

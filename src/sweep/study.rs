@@ -27,18 +27,22 @@ pub struct StudySettings {
 }
 
 impl StudySettings {
-    /// The settings a journal folder records (the circuit's name and title and the supply
-    /// with them): a resumed or merged study must match them.
+    /// The settings a journal folder records (the circuit's name, title and a digest of
+    /// its file's text, and the supply with them): a resumed or merged study must match
+    /// them, so a circuit file edited at the same path cannot join its points to the old
+    /// circuit's.
     pub fn journal_settings(
         &self,
         circuit_name: &str,
         circuit_title: &str,
+        circuit_text: &str,
         nominal_rms_v: f64,
         frequency_hz: f64,
     ) -> serde_json::Value {
         serde_json::json!({
             "circuit": circuit_name,
             "title": circuit_title,
+            "circuit_digest": format!("{:016x}", fnv1a(circuit_text.as_bytes())),
             "nominal_rms_v": nominal_rms_v,
             "frequency_hz": frequency_hz,
             "levels_pct": self.grid.levels_pct,
@@ -50,6 +54,17 @@ impl StudySettings {
             "shard": format!("{}/{}", self.shard.0, self.shard.1),
         })
     }
+}
+
+/// The 64-bit FNV-1a digest of `bytes` (Fowler, Noll and Vo; published constants): a
+/// fingerprint of a circuit file, stable across builds and platforms.
+pub fn fnv1a(bytes: &[u8]) -> u64 {
+    let mut hash: u64 = 0xcbf2_9ce4_8422_2325;
+    for &b in bytes {
+        hash ^= u64::from(b);
+        hash = hash.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    hash
 }
 
 /// Told of a study's progress (from worker threads).
@@ -229,4 +244,17 @@ pub fn run_study(
         boundaries,
         durations,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::fnv1a;
+
+    #[test]
+    fn fnv1a_matches_the_published_test_vectors() {
+        // FNV-1a 64-bit test vectors (Fowler, Noll and Vo), from memory.
+        assert_eq!(fnv1a(b""), 0xcbf2_9ce4_8422_2325);
+        assert_eq!(fnv1a(b"a"), 0xaf63_dc4c_8601_ec8c);
+        assert_eq!(fnv1a(b"foobar"), 0x8594_4171_f739_67e8);
+    }
 }
