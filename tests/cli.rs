@@ -504,6 +504,50 @@ fn shards_merge_into_the_whole_sweep() {
             .count(),
         51
     );
+    // Overlapping inputs: a shard with the whole sweep merges to the whole sweep (each
+    // point once); the same folder twice is refused; a point held twice with different
+    // results is refused.
+    let overlap = base.join("overlap");
+    sagtrip_ok(&[
+        "merge",
+        &folders[0],
+        whole.to_str().unwrap(),
+        "--out",
+        overlap.to_str().unwrap(),
+    ]);
+    assert_eq!(read(&overlap, "points.csv"), read(&whole, "points.csv"));
+    sagtrip_fails(
+        &[
+            "merge",
+            &folders[0],
+            &folders[0],
+            "--out",
+            overlap.to_str().unwrap(),
+        ],
+        "more than once",
+    );
+    let altered = base.join("altered");
+    std::fs::create_dir_all(&altered).unwrap();
+    for f in [
+        "sweep-settings.json",
+        "boundary.csv",
+        "duration-boundary.csv",
+    ] {
+        std::fs::copy(whole.join(f), altered.join(f)).unwrap();
+    }
+    let text = String::from_utf8(read(&whole, "points.csv")).unwrap();
+    let changed = text.replacen(",trips,", ",rides-through,", 1);
+    std::fs::write(altered.join("points.csv"), changed).unwrap();
+    sagtrip_fails(
+        &[
+            "merge",
+            whole.to_str().unwrap(),
+            altered.to_str().unwrap(),
+            "--out",
+            overlap.to_str().unwrap(),
+        ],
+        "different results",
+    );
     // The same command resumes the finished folder: nothing runs again, nothing changes.
     let before: Vec<Vec<u8>> = files.iter().map(|f| read(&whole, f)).collect();
     run(&["--out", whole.to_str().unwrap(), "--resume"]);

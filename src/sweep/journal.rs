@@ -63,6 +63,24 @@ pub enum JournalError {
     /// Nothing to merge.
     #[error("merge needs at least one folder")]
     NoFolders,
+    /// The same folder given twice.
+    #[error("{} is given more than once", dir.display())]
+    Repeated {
+        /// The folder.
+        dir: PathBuf,
+    },
+    /// Two folders hold the same grid point with different results.
+    #[error("{} and an earlier folder hold {level_pct}% for {duration_s} s at {phase_deg} deg with different results", dir.display())]
+    Disagree {
+        /// The folder where the second result was found.
+        dir: PathBuf,
+        /// The point's level, percent.
+        level_pct: f64,
+        /// Its duration, seconds.
+        duration_s: f64,
+        /// Its phase, degrees.
+        phase_deg: f64,
+    },
 }
 
 fn io<'a>(
@@ -245,7 +263,13 @@ pub fn merge(folders: &[PathBuf]) -> Result<Merged, JournalError> {
     let first = folders.first().ok_or(JournalError::NoFolders)?;
     let mut settings: Option<serde_json::Value> = None;
     let mut all = Contents::default();
+    let mut seen: Vec<PathBuf> = Vec::new();
     for dir in folders {
+        let resolved = std::fs::canonicalize(dir).unwrap_or_else(|_| dir.clone());
+        if seen.contains(&resolved) {
+            return Err(JournalError::Repeated { dir: dir.clone() });
+        }
+        seen.push(resolved);
         let mut s = read_settings(&dir.join(SETTINGS_FILE))?;
         if let serde_json::Value::Object(m) = &mut s {
             m.remove("shard");
@@ -261,6 +285,24 @@ pub fn merge(folders: &[PathBuf]) -> Result<Merged, JournalError> {
             Some(_) => {}
         }
         let c = read_contents(dir);
+        // A point in two folders (a shard with the whole sweep, overlapping shards) is kept
+        // once, and only if both hold the same result.
+        for p in &c.points {
+            if let Some(q) = all.points.iter().find(|q| {
+                q.level_pct == p.level_pct
+                    && q.duration_s == p.duration_s
+                    && q.phase_deg == p.phase_deg
+            }) {
+                if point_line(q) != point_line(p) {
+                    return Err(JournalError::Disagree {
+                        dir: dir.clone(),
+                        level_pct: p.level_pct,
+                        duration_s: p.duration_s,
+                        phase_deg: p.phase_deg,
+                    });
+                }
+            }
+        }
         all.points.extend(c.points);
         all.boundaries.extend(c.boundaries);
         all.durations.extend(c.durations);
