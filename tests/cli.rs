@@ -1046,3 +1046,56 @@ fn a_sweep_does_not_resume_over_an_edited_circuit() {
     let err = sagtrip_fails(&resume, "other settings");
     assert!(err.contains("--resume needs the same circuit"), "{err}");
 }
+
+#[test]
+fn a_sweep_killed_mid_run_resumes_to_the_uninterrupted_files() {
+    // Killed (SIGKILL on Unix) while points are being appended, twice, then resumed with the
+    // same command: the files are byte for byte those of an uninterrupted sweep.
+    let base = temp_path("killed");
+    let _ = std::fs::remove_dir_all(&base);
+    let grid = [
+        "sweep",
+        "--levels",
+        "0:80:20",
+        "--durations",
+        "1cyc:1s",
+        "--duration-count",
+        "5",
+        "--phases",
+        "0,90",
+        "--no-refine",
+        "--quiet",
+    ];
+    let whole = base.join("whole");
+    let killed = base.join("killed");
+    let mut args = grid.to_vec();
+    args.extend(["--out", whole.to_str().unwrap()]);
+    sagtrip_ok(&args);
+    for (k, wait_ms) in [(0, 700), (1, 500)] {
+        let mut args = grid.to_vec();
+        args.extend(["--out", killed.to_str().unwrap()]);
+        if k > 0 {
+            args.push("--resume");
+        }
+        let mut child = Command::new(env!("CARGO_BIN_EXE_sagtrip"))
+            .args(&args)
+            .current_dir(env!("CARGO_MANIFEST_DIR"))
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .unwrap();
+        std::thread::sleep(std::time::Duration::from_millis(wait_ms));
+        let _ = child.kill();
+        let _ = child.wait();
+    }
+    let mut args = grid.to_vec();
+    args.extend(["--out", killed.to_str().unwrap(), "--resume"]);
+    sagtrip_ok(&args);
+    for f in ["points.csv", "boundary.csv", "duration-boundary.csv"] {
+        assert_eq!(
+            std::fs::read(killed.join(f)).unwrap(),
+            std::fs::read(whole.join(f)).unwrap(),
+            "{f}"
+        );
+    }
+}
