@@ -1099,3 +1099,32 @@ fn a_sweep_killed_mid_run_resumes_to_the_uninterrupted_files() {
         );
     }
 }
+
+#[test]
+fn absurd_spans_and_counts_are_refused_at_parse_time() {
+    // Each of these ran forever or exhausted memory; each must end at once with the option
+    // (or the event's field) and the allowed range.
+    for (args, expected) in [
+        (vec!["run", "--event", "interrupt:1e300s"], "at most 86400 s"),
+        (vec!["run", "--event", "swell:120%:1e12cyc"], "at most 86400 s"),
+        (vec!["run", "--duration", "1e300s"], "--duration 1e300s: allowed"),
+        (vec!["run", "--max-step", "1e-15s"], "--max-step 1e-15s: allowed"),
+        (
+            vec!["sweep", "--durations", "1cyc:1e300s"],
+            "--durations 1e300s: allowed",
+        ),
+        (vec!["sweep", "--levels", "0:90:1e-12"], "at most 1000"),
+        (vec!["sweep", "--duration-count", "100000000"], "at most 1000"),
+        (vec!["sweep", "--resolution", "0"], "--resolution 0: allowed"),
+        (vec!["sweep", "--levels", "nan:90:10"], "--levels nan:90:10"),
+        (
+            vec!["run", "--event", "dip:40%:10cyc", "--nominal", "230V/1e-300Hz"],
+            "the frequency is allowed from 1 Hz to 1000 Hz",
+        ),
+    ] {
+        let out = sagtrip(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+}

@@ -197,15 +197,26 @@ pub(crate) fn time_option(text: &Option<String>, name: &str) -> Result<Option<f6
             parse_value(t, Quantity::Time)
                 .map_err(|e| format!("--{name}: {e}"))
                 .and_then(|v| {
-                    if v > 0.0 {
+                    if (MIN_TIME_S..=MAX_TIME_S).contains(&v) {
                         Ok(v)
                     } else {
-                        Err(format!("--{name} must be positive, got {t}"))
+                        Err(format!(
+                            "--{name} {t}: allowed from {MIN_TIME_S} s to {MAX_TIME_S} s (one day)"
+                        ))
                     }
                 })
         })
         .transpose()
 }
+
+/// The range of a time option, seconds: 1 ns to one day.
+pub(crate) const MIN_TIME_S: f64 = 1e-9;
+/// See [`MIN_TIME_S`].
+pub(crate) const MAX_TIME_S: f64 = 86_400.0;
+/// The range of a supply frequency, hertz.
+pub(crate) const FREQUENCY_RANGE_HZ: (f64, f64) = (1.0, 1000.0);
+/// The most durations, or levels, of a sweep's grid.
+pub(crate) const MAX_GRID_AXIS: usize = 1000;
 
 /// Reads `--nominal 230V/50Hz`.
 pub(crate) fn nominal_option(text: &str) -> Result<(f64, f64), String> {
@@ -214,8 +225,16 @@ pub(crate) fn nominal_option(text: &str) -> Result<(f64, f64), String> {
         .ok_or_else(|| format!("--nominal {text}: expected VOLTS/HERTZ, e.g. 230V/50Hz"))?;
     let v = parse_value(v, Quantity::Voltage).map_err(|e| format!("--nominal {text}: {e}"))?;
     let f = parse_value(f, Quantity::Frequency).map_err(|e| format!("--nominal {text}: {e}"))?;
-    if v <= 0.0 || f <= 0.0 {
-        return Err(format!("--nominal {text}: both values must be positive"));
+    if !(v.is_finite() && v > 0.0 && v <= 1e6) {
+        return Err(format!(
+            "--nominal {text}: the voltage is allowed above 0 V up to 1 MV"
+        ));
+    }
+    let (lo, hi) = FREQUENCY_RANGE_HZ;
+    if !(lo..=hi).contains(&f) {
+        return Err(format!(
+            "--nominal {text}: the frequency is allowed from {lo} Hz to {hi} Hz"
+        ));
     }
     Ok((v, f))
 }
@@ -231,10 +250,12 @@ pub(crate) fn duration_option(text: &str, name: &str, frequency_hz: f64) -> Resu
     } else {
         parse_value(text, Quantity::Time).map_err(|e| format!("--{name}: {e}"))?
     };
-    if seconds.is_finite() && seconds >= 0.0 {
+    if seconds.is_finite() && (0.0..=MAX_TIME_S).contains(&seconds) {
         Ok(seconds)
     } else {
-        Err(format!("--{name} {text}: must not be negative"))
+        Err(format!(
+            "--{name} {text}: allowed from 0 s to {MAX_TIME_S} s (one day)"
+        ))
     }
 }
 
@@ -250,12 +271,24 @@ pub(crate) fn level_range(text: &str, name: &str) -> Result<Vec<f64>, String> {
             "--{name} {text}: expected FROM:TO:STEP in percent, e.g. 0:90:10"
         ));
     };
-    if *step <= 0.0 || to < from || *from < 0.0 {
+    let (from, to, step) = (*from, *to, *step);
+    let fits = [from, to, step].iter().all(|x| x.is_finite())
+        && step > 0.0
+        && from >= 0.0
+        && from <= to
+        && to <= 1000.0;
+    if !fits {
         return Err(format!(
-            "--{name} {text}: need 0 <= FROM <= TO and STEP > 0"
+            "--{name} {text}: need 0 <= FROM <= TO <= 1000 and STEP > 0"
         ));
     }
-    let count = ((to - from) / step + 1e-9).floor() as usize + 1;
+    let count = ((to - from) / step + 1e-9).floor() + 1.0;
+    if count > MAX_GRID_AXIS as f64 {
+        return Err(format!(
+            "--{name} {text}: {count} levels; at most {MAX_GRID_AXIS}"
+        ));
+    }
+    let count = count as usize;
     Ok((0..count).map(|k| from + step * k as f64).collect())
 }
 

@@ -194,6 +194,20 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     })?;
     let first = duration_option(first, "durations", frequency)?;
     let last = duration_option(last, "durations", frequency)?;
+    if args.duration_count > MAX_GRID_AXIS {
+        return Err(format!(
+            "--duration-count {}: at most {MAX_GRID_AXIS}",
+            args.duration_count
+        )
+        .into());
+    }
+    if !(0.01..=50.0).contains(&args.resolution) {
+        return Err(format!(
+            "--resolution {}: allowed from 0.01 to 50 (% of nominal)",
+            args.resolution
+        )
+        .into());
+    }
     if first <= 0.0 || last < first || args.duration_count == 0 {
         return Err("--durations: need 0 < SHORTEST <= LONGEST and a positive count".into());
     }

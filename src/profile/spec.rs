@@ -67,6 +67,11 @@ pub(crate) fn parse_level(spec: &str, f: Field<'_>) -> Result<f64, SpecError> {
     }
 }
 
+/// The longest step of an event, seconds (one day: no supply study needs more).
+pub const MAX_EVENT_S: f64 = 86_400.0;
+/// The longest step of an event, cycles (one day at 60 Hz).
+pub const MAX_EVENT_CYCLES: f64 = 5_184_000.0;
+
 pub(crate) fn parse_duration(spec: &str, f: Field<'_>) -> Result<Duration, SpecError> {
     let text = f.text.trim();
     let bad = || {
@@ -92,6 +97,22 @@ pub(crate) fn parse_duration(spec: &str, f: Field<'_>) -> Result<Duration, SpecE
     };
     if !value.is_finite() || value < 0.0 {
         return Err(bad());
+    }
+    let too_long = match duration {
+        Duration::Cycles(n) => n > MAX_EVENT_CYCLES,
+        Duration::Seconds(s) => s > MAX_EVENT_S,
+    };
+    if too_long {
+        return Err(spec_error(
+            spec,
+            f.at,
+            f.text.len(),
+            format!(
+                "`{}` is longer than any study needs: a step lasts at most {MAX_EVENT_S} s (one \
+                 day) or {MAX_EVENT_CYCLES} cycles",
+                f.text
+            ),
+        ));
     }
     Ok(duration)
 }
