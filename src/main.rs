@@ -91,7 +91,7 @@ fn main() -> ExitCode {
             let json = text.trim_start().starts_with(['{', '[']);
             if !text.trim().is_empty() && !text.contains(sagtrip::CAUTION) {
                 if json {
-                    eprintln!("{}", sagtrip::CAUTION);
+                    let _ = writeln!(std::io::stderr(), "{}", sagtrip::CAUTION);
                 } else {
                     let _ = writeln!(std::io::stdout(), "\n{}", sagtrip::CAUTION);
                 }
@@ -99,8 +99,24 @@ fn main() -> ExitCode {
             ExitCode::SUCCESS
         }
         Err(failure) => {
-            eprintln!("error: {}", failure.message().trim_end());
+            // A closed error stream is no reason to panic: the exit code still tells.
+            let message = clipped(failure.message().trim_end());
+            let _ = writeln!(std::io::stderr(), "error: {message}");
             ExitCode::from(failure.code())
         }
     }
+}
+
+/// A message with every line cut to at most 400 characters: an input with an enormous line
+/// must not flood the terminal with its echo.
+fn clipped(message: &str) -> String {
+    const MAX: usize = 400;
+    message
+        .lines()
+        .map(|line| match line.char_indices().nth(MAX) {
+            Some((cut, _)) => format!("{}...", &line[..cut]),
+            None => line.to_string(),
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
 }

@@ -1105,20 +1105,44 @@ fn absurd_spans_and_counts_are_refused_at_parse_time() {
     // Each of these ran forever or exhausted memory; each must end at once with the option
     // (or the event's field) and the allowed range.
     for (args, expected) in [
-        (vec!["run", "--event", "interrupt:1e300s"], "at most 86400 s"),
-        (vec!["run", "--event", "swell:120%:1e12cyc"], "at most 86400 s"),
-        (vec!["run", "--duration", "1e300s"], "--duration 1e300s: allowed"),
-        (vec!["run", "--max-step", "1e-15s"], "--max-step 1e-15s: allowed"),
+        (
+            vec!["run", "--event", "interrupt:1e300s"],
+            "at most 86400 s",
+        ),
+        (
+            vec!["run", "--event", "swell:120%:1e12cyc"],
+            "at most 86400 s",
+        ),
+        (
+            vec!["run", "--duration", "1e300s"],
+            "--duration 1e300s: allowed",
+        ),
+        (
+            vec!["run", "--max-step", "1e-15s"],
+            "--max-step 1e-15s: allowed",
+        ),
         (
             vec!["sweep", "--durations", "1cyc:1e300s"],
             "--durations 1e300s: allowed",
         ),
         (vec!["sweep", "--levels", "0:90:1e-12"], "at most 1000"),
-        (vec!["sweep", "--duration-count", "100000000"], "at most 1000"),
-        (vec!["sweep", "--resolution", "0"], "--resolution 0: allowed"),
+        (
+            vec!["sweep", "--duration-count", "100000000"],
+            "at most 1000",
+        ),
+        (
+            vec!["sweep", "--resolution", "0"],
+            "--resolution 0: allowed",
+        ),
         (vec!["sweep", "--levels", "nan:90:10"], "--levels nan:90:10"),
         (
-            vec!["run", "--event", "dip:40%:10cyc", "--nominal", "230V/1e-300Hz"],
+            vec![
+                "run",
+                "--event",
+                "dip:40%:10cyc",
+                "--nominal",
+                "230V/1e-300Hz",
+            ],
             "the frequency is allowed from 1 Hz to 1000 Hz",
         ),
     ] {
@@ -1127,4 +1151,25 @@ fn absurd_spans_and_counts_are_refused_at_parse_time() {
         assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
         assert!(err.contains(expected), "{args:?}: {err}");
     }
+}
+
+#[test]
+fn an_enormous_line_is_not_echoed_whole() {
+    // A circuit file whose one bad line holds two megabytes: the error names the place and
+    // shows a short window of it, not the whole line.
+    let path = temp_path("enormous.toml");
+    let text = format!(
+        "title = \"x\"\n[part.r]\nkind = \"resistor\"\npins = [\"a\", \"gnd\"]\nresistance = \"{}q\"  # {}\n",
+        "9".repeat(1_000_000),
+        "x".repeat(1_000_000)
+    );
+    std::fs::write(&path, text).unwrap();
+    let out = sagtrip(&["check", "--circuit", path.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("enormous.toml:5:14: part.r.resistance"),
+        "{err}"
+    );
+    assert!(err.len() < 4000, "{} bytes of error", err.len());
 }

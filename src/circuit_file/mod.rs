@@ -51,6 +51,29 @@ pub struct CircuitFileError {
     pub problems: Vec<FileProblem>,
 }
 
+/// The most characters of a source line shown under an error.
+const EXCERPT_CHARS: usize = 100;
+
+/// A window of at most [`EXCERPT_CHARS`] characters of `line` around character `column`
+/// (a file with one enormous line must not flood the terminal), and the column in it.
+fn excerpt(line: &str, column: usize) -> (String, usize) {
+    let chars: Vec<char> = line.chars().collect();
+    if chars.len() <= EXCERPT_CHARS {
+        return (line.to_string(), column);
+    }
+    let start = column
+        .saturating_sub(EXCERPT_CHARS / 2)
+        .min(chars.len() - EXCERPT_CHARS);
+    let window: String = chars[start..start + EXCERPT_CHARS].iter().collect();
+    let (before, after) = (start > 0, start + EXCERPT_CHARS < chars.len());
+    let text = format!(
+        "{}{window}{}",
+        if before { "..." } else { "" },
+        if after { "..." } else { "" }
+    );
+    (text, column - start + if before { 3 } else { 0 })
+}
+
 impl fmt::Display for CircuitFileError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         let count = self.problems.len();
@@ -68,14 +91,16 @@ impl fmt::Display for CircuitFileError {
                 self.path, p.line, p.column, p.field, p.message
             )?;
             let gutter = p.line.to_string().len();
+            let (excerpt, column) = excerpt(&p.source_line, p.column.saturating_sub(1));
+            let marker = p.marker_len.clamp(1, EXCERPT_CHARS);
             writeln!(f, "{:gutter$} |", "")?;
-            writeln!(f, "{} | {}", p.line, p.source_line)?;
+            writeln!(f, "{} | {excerpt}", p.line)?;
             writeln!(
                 f,
                 "{:gutter$} | {}{}",
                 "",
-                " ".repeat(p.column.saturating_sub(1)),
-                "^".repeat(p.marker_len.max(1))
+                " ".repeat(column),
+                "^".repeat(marker)
             )?;
         }
         Ok(())
