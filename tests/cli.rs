@@ -1173,3 +1173,61 @@ fn an_enormous_line_is_not_echoed_whole() {
     );
     assert!(err.len() < 4000, "{} bytes of error", err.len());
 }
+
+#[test]
+fn nonsense_thresholds_scales_harmonics_and_phases_are_refused() {
+    let wav = temp_path("nonsense.wav");
+    let w = wav.to_str().unwrap();
+    sagtrip_ok(&["synth", "dip:40%:10cyc", "--out", w]);
+    for (args, expected) in [
+        (
+            vec!["detect", w, "--calibrate", "230V", "--dip", "150"],
+            "need 0 < interruption < dip < 100 < swell",
+        ),
+        (
+            vec!["detect", w, "--calibrate", "230V", "--swell", "50"],
+            "--swell 50",
+        ),
+        (
+            vec!["detect", w, "--calibrate", "230V", "--hysteresis", "200"],
+            "--hysteresis 200",
+        ),
+        (
+            vec!["detect", w, "--calibrate", "230V", "--interruption", "95"],
+            "--interruption 95",
+        ),
+        (
+            vec!["detect", w, "--calibrate", "230V", "--dip", "NaN"],
+            "--dip NaN",
+        ),
+        (
+            vec!["detect", w, "--calibrate", "0V"],
+            "--calibrate 0V: allowed",
+        ),
+        (
+            vec!["detect", w, "--volts-per-full-scale", "0V"],
+            "--volts-per-full-scale 0V: allowed",
+        ),
+        (
+            vec!["synth", "dip:40%:10cyc", "--out", w, "--harmonics", "0:5"],
+            "orders from 2 to 100",
+        ),
+        (
+            vec![
+                "synth",
+                "dip:40%:10cyc",
+                "--out",
+                w,
+                "--harmonics",
+                "4294967295:1",
+            ],
+            "orders from 2 to 100",
+        ),
+        (vec!["sweep", "--phases", "nan"], "--phases nan"),
+    ] {
+        let out = sagtrip(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+}

@@ -67,7 +67,7 @@ pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
         }
     };
     let (rate, how, description) = (scaled.rate, scaled.how.clone(), scaled.description.clone());
-    let thresholds = thresholds_of(&args.input);
+    let thresholds = thresholds_of(&args.input)?;
     let mut detector = Detector::new(rate, declared, frequency, thresholds.clone());
     for v in scaled.volts() {
         detector.push(v.map_err(|e| e.to_string())?);

@@ -52,6 +52,16 @@ pub(crate) fn check_recording_frequency(
         .map_err(|e| format!("{e} ({what})"))
 }
 
+/// A voltage option that must be positive and finite (at most 1 MV).
+fn positive_volts(text: &str, option: &str) -> Result<f64, String> {
+    let v = parse_value(text, Quantity::Voltage).map_err(|e| format!("--{option}: {e}"))?;
+    if v.is_finite() && v > 0.0 && v <= 1e6 {
+        Ok(v)
+    } else {
+        Err(format!("--{option} {text}: allowed above 0 V up to 1 MV"))
+    }
+}
+
 /// Opens the recording with the scale the options ask for.
 pub(crate) fn open_scaled(input: &RecordingInput) -> Result<Scaled, String> {
     use sagtrip::recording::{CsvColumns, Scale, ScaleError};
@@ -60,13 +70,11 @@ pub(crate) fn open_scaled(input: &RecordingInput) -> Result<Scaled, String> {
         voltage: input.voltage_column.clone(),
     };
     let scale = match (&input.volts_per_full_scale, &input.calibrate) {
-        (Some(text), _) => Some(Scale::VoltsPerFullScale(
-            parse_value(text, Quantity::Voltage)
-                .map_err(|e| format!("--volts-per-full-scale: {e}"))?,
-        )),
-        (None, Some(text)) => Some(Scale::CalibrateTo(
-            parse_value(text, Quantity::Voltage).map_err(|e| format!("--calibrate: {e}"))?,
-        )),
+        (Some(text), _) => Some(Scale::VoltsPerFullScale(positive_volts(
+            text,
+            "volts-per-full-scale",
+        )?)),
+        (None, Some(text)) => Some(Scale::CalibrateTo(positive_volts(text, "calibrate")?)),
         (None, None) => None,
     };
     sagtrip::recording::open_scaled(&input.recording, input.channel, &columns, scale).map_err(|e| {
@@ -80,12 +88,43 @@ pub(crate) fn open_scaled(input: &RecordingInput) -> Result<Scaled, String> {
     })
 }
 
-pub(crate) fn thresholds_of(input: &RecordingInput) -> sagtrip::detect::Thresholds {
-    sagtrip::detect::Thresholds {
-        dip_pct: input.dip,
-        swell_pct: input.swell,
-        interruption_pct: input.interruption,
-        hysteresis_pct: input.hysteresis,
-        phase_jump_deg: input.phase_jump,
+/// The detection thresholds the options ask for, refused unless they make sense together:
+/// 0 < interruption < dip < 100 < swell, a hysteresis that leaves the dip's end below 100%
+/// and the swell's above it, a phase jump from 0 to 180 degrees.
+pub(crate) fn thresholds_of(input: &RecordingInput) -> Result<sagtrip::detect::Thresholds, String> {
+    let (dip, swell, interruption, hysteresis, jump) = (
+        input.dip,
+        input.swell,
+        input.interruption,
+        input.hysteresis,
+        input.phase_jump,
+    );
+    let all_finite = [dip, swell, interruption, hysteresis, jump]
+        .iter()
+        .all(|x| x.is_finite());
+    let fits = all_finite
+        && interruption > 0.0
+        && interruption < dip
+        && dip < 100.0
+        && swell > 100.0
+        && swell <= 1000.0
+        && hysteresis >= 0.0
+        && dip + hysteresis < 100.0
+        && swell - hysteresis > 100.0
+        && (0.0..=180.0).contains(&jump);
+    if !fits {
+        return Err(format!(
+            "--interruption {interruption}, --dip {dip}, --swell {swell}, --hysteresis \
+             {hysteresis}, --phase-jump {jump}: need 0 < interruption < dip < 100 < swell \
+             (percent), dip + hysteresis < 100 < swell - hysteresis, and a phase jump from 0 \
+             to 180 degrees"
+        ));
     }
+    Ok(sagtrip::detect::Thresholds {
+        dip_pct: dip,
+        swell_pct: swell,
+        interruption_pct: interruption,
+        hysteresis_pct: hysteresis,
+        phase_jump_deg: jump,
+    })
 }

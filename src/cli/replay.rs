@@ -59,7 +59,7 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
         p.dedup();
         p
     });
-    let thresholds = thresholds_of(&args.input);
+    let thresholds = thresholds_of(&args.input)?;
     // A progress bar on the terminal (indicatif draws nothing when stderr is not one), in
     // seconds of recording; its length is known for WAV files, whose header gives it.
     let total_s = scaled.rest.expected_len.map(|n| n as f64 / rate);

@@ -169,9 +169,9 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     let phases: Vec<f64> = args
         .phases
         .split(',')
-        .map(|p| p.trim().parse::<f64>())
-        .collect::<Result<_, _>>()
-        .map_err(|_| format!("--phases {}: expected degrees, e.g. 0,90", args.phases))?;
+        .map(|p| p.trim().parse::<f64>().ok().filter(|x| x.is_finite()))
+        .collect::<Option<_>>()
+        .ok_or_else(|| format!("--phases {}: expected degrees, e.g. 0,90", args.phases))?;
     let (k, n) = args
         .shard
         .as_deref()

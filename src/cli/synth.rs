@@ -87,14 +87,18 @@ pub(crate) fn synth(args: &SynthArgs) -> Outcome {
                 .split(',')
                 .map(|h| {
                     let (order, pct) = h.split_once(':')?;
-                    Some((
-                        order.trim().parse::<u32>().ok()?,
-                        pct.trim().trim_end_matches('%').parse::<f64>().ok()? / 100.0,
-                    ))
+                    let order = order.trim().parse::<u32>().ok()?;
+                    let pct = pct.trim().trim_end_matches('%').parse::<f64>().ok()?;
+                    // Orders from 2 to 100 (the 100th of 50 Hz is 5 kHz), up to 100%.
+                    ((2..=100).contains(&order) && (0.0..=100.0).contains(&pct))
+                        .then_some((order, pct / 100.0))
                 })
                 .collect::<Option<Vec<_>>>()
                 .ok_or_else(|| {
-                    format!("--harmonics {text}: expected ORDER:PERCENT pairs, e.g. 3:5,5:3")
+                    format!(
+                        "--harmonics {text}: expected ORDER:PERCENT pairs, e.g. 3:5,5:3, with \
+                         orders from 2 to 100 and percentages from 0 to 100"
+                    )
                 })?,
         },
         noise: if args.noise >= 0.0 {
