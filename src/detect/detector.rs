@@ -268,23 +268,8 @@ impl Detector {
     fn wave_start(&self, stamp: f64) -> Option<WaveStart> {
         let n = 2.0 * self.half_period;
         let peak = self.declared_v * std::f64::consts::SQRT_2;
-        let lo = (stamp - 1.25 * n).ceil().max(0.0) as u64;
-        let hi = (stamp.floor() as u64).min(self.count.checked_sub(1)?);
-        let quiet_from = (stamp - 1.75 * n).ceil().max(0.0) as u64;
-        let quiet = (quiet_from..lo)
-            .map(|i| self.departure(i).map(f64::abs))
-            .collect::<Option<Vec<f64>>>()?
-            .into_iter()
-            .fold(0.0, f64::max);
-        let trigger = (WAVE_TRIGGER * peak).max(4.0 * quiet);
-        let floor = (WAVE_FLOOR * peak).max(2.0 * quiet);
-        let first = (lo..=hi).find(|&i| self.departure(i).is_some_and(|d| d.abs() > trigger))?;
-        let mut j = first;
-        while j > quiet_from && self.departure(j - 1)?.abs() > floor {
-            j -= 1;
-        }
-        let (a, b) = (self.departure(j - 1)?.abs(), self.departure(j)?.abs());
-        let at = (j - 1) as f64 + ((floor - a) / (b - a)).clamp(0.0, 1.0);
+        let (at, trigger, floor) =
+            self.first_departure(stamp, WAVE_TRIGGER * peak, WAVE_FLOOR * peak)?;
         let reference_first = (at - n).floor() as u64 - 1;
         let reference = (reference_first..=at.ceil() as u64 + 1)
             .map(|i| self.at(i as f64))
@@ -340,22 +325,38 @@ impl Detector {
             let (a, b) = (error(j)?, error(j + 1)?);
             return Some(j as f64 + ((a - wave.floor) / (a - b)).clamp(0.0, 1.0));
         }
-        let lo = (stamp - 1.25 * n).ceil() as u64;
-        let quiet_from = (stamp - 1.75 * n).ceil() as u64;
-        let quiet = (quiet_from..lo)
-            .map(|i| self.departure(i).map(f64::abs))
-            .collect::<Option<Vec<f64>>>()?
-            .into_iter()
-            .fold(0.0, f64::max);
-        let trigger = wave.trigger.max(4.0 * quiet);
-        let floor = wave.floor.max(2.0 * quiet);
+        self.first_departure(stamp, wave.trigger, wave.floor)
+            .map(|(at, _, _)| at)
+    }
+
+    /// The first change of waveform in the one-cycle window before sample position
+    /// `stamp`: the first sample there whose departure from the cycle before exceeds the
+    /// trigger, walked back to where the departure falls to the floor (interpolated between
+    /// samples). The trigger and floor are at least `min_trigger` and `min_floor`, and four
+    /// and two times the largest departure in the half cycle before the window (its noise).
+    /// Returns the position, the trigger and the floor.
+    fn first_departure(
+        &self,
+        stamp: f64,
+        min_trigger: f64,
+        min_floor: f64,
+    ) -> Option<(f64, f64, f64)> {
+        let n = 2.0 * self.half_period;
+        let lo = (stamp - 1.25 * n).ceil().max(0.0) as u64;
+        let hi = (stamp.floor() as u64).min(self.count.checked_sub(1)?);
+        let quiet_from = (stamp - 1.75 * n).ceil().max(0.0) as u64;
+        let quiet =
+            (quiet_from..lo).try_fold(0.0_f64, |m, i| Some(m.max(self.departure(i)?.abs())))?;
+        let trigger = min_trigger.max(4.0 * quiet);
+        let floor = min_floor.max(2.0 * quiet);
         let first = (lo..=hi).find(|&i| self.departure(i).is_some_and(|d| d.abs() > trigger))?;
         let mut j = first;
         while j > quiet_from && self.departure(j - 1)?.abs() > floor {
             j -= 1;
         }
         let (a, b) = (self.departure(j - 1)?.abs(), self.departure(j)?.abs());
-        Some((j - 1) as f64 + ((floor - a) / (b - a)).clamp(0.0, 1.0))
+        let at = (j - 1) as f64 + ((floor - a) / (b - a)).clamp(0.0, 1.0);
+        Some((at, trigger, floor))
     }
 
     /// The event state machine on one Urms(1/2) value (percent).

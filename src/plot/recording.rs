@@ -20,6 +20,21 @@ pub struct RecordingPlot<'a> {
     pub tripped: Option<Vec<bool>>,
 }
 
+/// A faint vertical line from 0 to `y_max` at each of `times`, in `colour`: instants of the
+/// protector drawn under the Urms(1/2) trace.
+fn instants(
+    times: &[f64],
+    y_max: f64,
+    colour: RGBColor,
+) -> impl Iterator<Item = PathElement<(f64, f64)>> + '_ {
+    times.iter().map(move |&t| {
+        PathElement::new(
+            vec![(t, 0.0), (t, y_max)],
+            ShapeStyle::from(&colour.mix(0.45)).stroke_width(1),
+        )
+    })
+}
+
 fn draw_recording<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     p: &RecordingPlot<'_>,
@@ -97,12 +112,7 @@ fn draw_recording<DB: DrawingBackend>(
         // Drawn under the Urms(1/2) trace so the trace stays readable; a marker at the top
         // makes each trip easy to find at any zoom.
         chart
-            .draw_series(p.trips.iter().map(|&t| {
-                PathElement::new(
-                    vec![(t, 0.0), (t, y_max)],
-                    ShapeStyle::from(&RED.mix(0.45)).stroke_width(1),
-                )
-            }))
+            .draw_series(instants(&p.trips, y_max, RED))
             .map_err(e)?
             .label("protector trips")
             .legend(|(x, y)| TriangleMarker::new((x + 8, y), 5, RED.filled()));
@@ -117,12 +127,7 @@ fn draw_recording<DB: DrawingBackend>(
     if !p.reconnections.is_empty() {
         let green = RGBColor(30, 130, 50);
         chart
-            .draw_series(p.reconnections.iter().map(|&t| {
-                PathElement::new(
-                    vec![(t, 0.0), (t, y_max)],
-                    ShapeStyle::from(&green.mix(0.45)).stroke_width(1),
-                )
-            }))
+            .draw_series(instants(&p.reconnections, y_max, green))
             .map_err(e)?
             .label("protector reconnects")
             .legend(move |(x, y)| Circle::new((x + 8, y), 4, green.filled()));
