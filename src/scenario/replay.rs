@@ -36,7 +36,9 @@ pub struct ReplayTrip {
 pub enum LatencyReference {
     /// The point-on-wave start and end (as `run` counts from the true onset and end).
     PointOnWave,
-    /// The IEC 61000-4-30 Urms(1/2) start and end (no clean departure in the waveform).
+    /// No clean departure in the waveform: from the start of the first IEC 61000-4-30
+    /// Urms(1/2) window past the threshold (a cycle before its time stamp), to the
+    /// Urms(1/2) end.
     UrmsHalfCycle,
 }
 
@@ -256,17 +258,28 @@ impl Settled {
                 reconnected_s: o.reconnected_s.map(to_rec),
             })
             .collect();
-        // Every trip from a cycle before an event's start to a second after its end belongs
-        // to that event; more than one opening or reconnection is chatter.
+        // Trips are assigned to the events they follow; more than one opening or
+        // reconnection for an event is chatter.
         let mut assigned = vec![false; trips.len()];
         let mut responses = Vec::new();
         for event in &detection.events {
             let end = event.start_s + event.duration_s;
+            // Latencies count from the point-on-wave start and end, as `run` counts from
+            // the event's true onset and end. Without a clean departure in the waveform,
+            // from the start of the first Urms(1/2) window past the threshold (one cycle
+            // before its time stamp: the onset lies in that window) and the Urms(1/2) end.
+            let (onset, onset_from) = match event.wave_start_s {
+                Some(t) => (t, LatencyReference::PointOnWave),
+                None => (event.start_s - period, LatencyReference::UrmsHalfCycle),
+            };
+            let wave_end = match (event.wave_start_s, event.wave_end_s) {
+                (Some(_), Some(t)) => t,
+                _ => end,
+            };
+            // Every trip from the onset to a second after the end belongs to the event.
             let mine: Vec<usize> = (0..trips.len())
                 .filter(|&i| {
-                    !assigned[i]
-                        && trips[i].time_s >= event.start_s - period
-                        && trips[i].time_s <= end + 1.0
+                    !assigned[i] && trips[i].time_s >= onset && trips[i].time_s <= end + 1.0
                 })
                 .collect();
             for &i in &mine {
@@ -281,22 +294,11 @@ impl Settled {
                 .collect();
             let trip = mine.first().map(|&i| trips[i].clone());
             let reconnected = mine.last().and_then(|&i| trips[i].reconnected_s);
-            // Latencies count from the point-on-wave start and end, as `run` counts from
-            // the event's true onset and end; the Urms(1/2) times stand in when the
-            // waveform gave no clean departure.
-            let (onset, onset_from) = match event.wave_start_s {
-                Some(t) => (t, LatencyReference::PointOnWave),
-                None => (event.start_s, LatencyReference::UrmsHalfCycle),
-            };
-            let wave_end = match (event.wave_start_s, event.wave_end_s) {
-                (Some(_), Some(t)) => t,
-                _ => end,
-            };
             responses.push(EventResponse {
                 event: event.clone(),
                 tripped: trip.is_some(),
                 latencies_from: onset_from,
-                trip_latency_ms: trip.as_ref().map(|t| (t.time_s - onset).max(0.0) * 1e3),
+                trip_latency_ms: trip.as_ref().map(|t| (t.time_s - onset) * 1e3),
                 restore_latency_ms: reconnected
                     .filter(|&r| r >= wave_end)
                     .map(|r| (r - wave_end) * 1e3),
