@@ -29,6 +29,7 @@ pub mod plot;
 pub use plot::reference_curves;
 pub mod probe;
 pub mod profile;
+pub mod progress;
 pub mod recording;
 pub mod scenario;
 pub mod summary;

@@ -77,7 +77,7 @@ impl Bars {
     }
 }
 
-impl sagtrip::sweep::study::StudyProgress for Bars {
+impl sagtrip::progress::Progress for Bars {
     fn stage(&self, what: &str, total: usize) {
         let Ok(mut bar) = self.bar.lock() else { return };
         bar.finish_and_clear();

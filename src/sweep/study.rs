@@ -67,23 +67,6 @@ pub fn fnv1a(bytes: &[u8]) -> u64 {
     hash
 }
 
-/// Told of a study's progress (from worker threads).
-pub trait StudyProgress: Sync {
-    /// A stage begins: `what` (`points` or `boundaries`), with `total` items.
-    fn stage(&self, what: &str, total: usize);
-    /// An item begins (a boundary search: what it is); points are not announced.
-    fn item(&self, what: &str);
-    /// An item is done.
-    fn done(&self);
-}
-
-/// Progress reporting that shows nothing.
-impl StudyProgress for () {
-    fn stage(&self, _: &str, _: usize) {}
-    fn item(&self, _: &str) {}
-    fn done(&self) {}
-}
-
 /// Why a study stopped.
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum StudyError {
@@ -126,7 +109,7 @@ pub fn run_study(
     settings: &StudySettings,
     journal: Option<&Journal>,
     done: Contents,
-    progress: &dyn StudyProgress,
+    progress: &dyn crate::progress::Progress,
 ) -> Result<StudyResult, StudyError> {
     let grid = &settings.grid;
     let (k, n) = settings.shard;

@@ -99,20 +99,7 @@ pub enum Cases {
     },
 }
 
-/// Reports a table's progress: stages of simulated runs, and each run as it finishes
-/// (from worker threads).
-pub trait Progress: Sync {
-    /// A stage begins: `name` (empty for the table itself) of `runs` runs or searches.
-    fn stage(&self, name: &str, runs: usize);
-    /// One run or threshold search finished.
-    fn done(&self);
-}
-
-/// Progress reporting that shows nothing.
-impl Progress for () {
-    fn stage(&self, _: &str, _: usize) {}
-    fn done(&self) {}
-}
+pub use crate::progress::Progress;
 
 /// The circuit a table runs on: its file's text, where it came from (for messages and
 /// tolerance cases) and its parsed form.
