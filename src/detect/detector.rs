@@ -30,8 +30,9 @@ struct WaveStart {
     reference_first: u64,
 }
 
-/// A departure that marks a change of waveform: 3% of the declared peak (common
-/// practice for a point-on-wave trigger), or four times the quiet cycle's departure.
+/// A departure that marks a change of waveform: 3% of the declared peak (our own choice,
+/// well below the 10% change of the shallowest dip or swell the thresholds detect), or four
+/// times the quiet cycle's departure.
 const WAVE_TRIGGER: f64 = 0.03;
 
 /// The level the start is walked back to: 0.2% of the declared peak, or twice the quiet
