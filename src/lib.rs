@@ -17,6 +17,16 @@ pub const CAUTION: &str = "Caution: mains voltage can kill. These are simulated 
      circuit model: they do not replace testing a real unit, the local electrical codes that \
      apply, or the judgement of a licensed practitioner.";
 
+/// Appends a line to a report being built in a `String` (writing to a String cannot fail).
+macro_rules! say {
+    ($out:expr) => {
+        let _ = writeln!($out);
+    };
+    ($out:expr, $($arg:tt)*) => {
+        let _ = writeln!($out, $($arg)*);
+    };
+}
+
 pub mod builtin;
 pub mod circuit;
 pub mod circuit_file;

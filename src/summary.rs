@@ -2,11 +2,14 @@
 //!
 //! Pure functions over a [`Trace`]; rendering is the caller's.
 
+use std::fmt::Write as _;
+
 use serde::Serialize;
 
 use crate::circuit::{Circuit, PartSpec};
-use crate::engine::EventKind;
+use crate::engine::{EventKind, RunStats, Start};
 use crate::probe::Trace;
+use crate::units::{Engineering, Quantity};
 
 /// What a relay did during a run, from its located events.
 #[derive(Clone, Debug, PartialEq, Serialize)]
@@ -116,6 +119,179 @@ pub fn settled_values(circuit: &Circuit, trace: &Trace, window_s: f64) -> Vec<Pr
             }
         })
         .collect()
+}
+
+/// The report of a plain run (a power-up, no supply event): its JSON object and its text.
+pub struct RunReport<'a> {
+    /// The circuit's name (its file, or the built-in guard).
+    pub name: &'a str,
+    /// The circuit.
+    pub circuit: &'a Circuit,
+    /// How the run began.
+    pub start: Start,
+    /// Simulated time, seconds.
+    pub duration_s: f64,
+    /// The window the settled values cover, seconds.
+    pub window_s: f64,
+    /// The recorded run.
+    pub trace: &'a Trace,
+    /// The solver's counters.
+    pub stats: &'a RunStats,
+    /// Wall time, seconds.
+    pub wall_s: f64,
+    /// Where the trace was written, if it was.
+    pub trace_file: Option<&'a str>,
+}
+
+impl RunReport<'_> {
+    /// The report as one JSON object.
+    pub fn json(&self) -> serde_json::Value {
+        let circuit = self.circuit;
+        serde_json::json!({
+            "circuit": self.name,
+            "title": circuit.title,
+            "duration_s": self.duration_s,
+            "settled_window_s": self.window_s,
+            "probes": settled_values(circuit, self.trace, self.window_s),
+            "relays": relay_timelines(circuit, self.trace),
+            "events": self.trace.events.iter().map(|e| serde_json::json!({
+                "time_s": e.time,
+                "part": circuit.parts[e.part].name,
+                "kind": e.kind,
+            })).collect::<Vec<_>>(),
+            "stats": self.stats,
+            "wall_time_s": self.wall_s,
+            "trace": self.trace_file,
+        })
+    }
+
+    /// The report as text: the relays' timelines and the settled values; the discrete events
+    /// and the solver's counters when asked.
+    pub fn text(&self, with_events: bool, with_stats: bool) -> String {
+        let mut out = String::new();
+        let circuit = self.circuit;
+        if circuit.title.is_empty() {
+            say!(out, "{}", self.name);
+        } else {
+            say!(out, "{}: {}", self.name, circuit.title);
+        }
+        say!(
+            out,
+            "simulated {} from {} in {} steps ({:.3} s wall, {:.0}x real time)",
+            Engineering(self.duration_s, Quantity::Time),
+            match self.start {
+                Start::Rest => "rest",
+                Start::OperatingPoint => "the operating point",
+            },
+            self.stats.accepted_steps,
+            self.wall_s,
+            self.duration_s / self.wall_s.max(1e-9)
+        );
+        for r in relay_timelines(circuit, self.trace) {
+            say!(out);
+            relay_text(&mut out, &r);
+        }
+        say!(
+            out,
+            "\nsettled values over the last {}:",
+            Engineering(self.window_s, Quantity::Time)
+        );
+        say!(
+            out,
+            "{:<22} {:>14} {:>14} {:>14} {:>14}",
+            "probe",
+            "mean",
+            "min",
+            "max",
+            "final"
+        );
+        for s in settled_values(circuit, self.trace, self.window_s) {
+            say!(
+                out,
+                "{:<22} {:>14.6} {:>14.6} {:>14.6} {:>14.6}",
+                s.probe,
+                s.mean,
+                s.min,
+                s.max,
+                s.last
+            );
+        }
+        if with_events && !self.trace.events.is_empty() {
+            say!(out, "\ndiscrete events:");
+            for e in &self.trace.events {
+                say!(
+                    out,
+                    "  {:>12.6} ms  {:<14} {}",
+                    e.time * 1e3,
+                    circuit.parts[e.part].name,
+                    e.kind.describe()
+                );
+            }
+        }
+        if with_stats {
+            let s = self.stats;
+            say!(
+                out,
+                "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations ({} with a new pivot order), {} restarts, {} located events",
+                s.accepted_steps,
+                s.rejected_steps,
+                s.newton_failures,
+                s.newton_iterations,
+                s.factorizations,
+                s.reorders,
+                s.restarts,
+                s.located_events
+            );
+        }
+        if let Some(file) = self.trace_file {
+            say!(
+                out,
+                "\ntrace: {} rows x {} probes written to {file}",
+                self.trace.time.len(),
+                self.trace.probes.len(),
+            );
+        }
+        out
+    }
+}
+
+/// One relay's timeline as text.
+fn relay_text(out: &mut String, r: &RelayTimeline) {
+    let Some(pickup) = r.first_pickup_s else {
+        say!(out, "relay `{}` never picked up", r.relay);
+        return;
+    };
+    say!(
+        out,
+        "relay `{}` first picked up at {:.3} ms",
+        r.relay,
+        pickup * 1e3
+    );
+    if let Some(made) = r.first_contact_made_s {
+        say!(
+            out,
+            "  normally-open contact first made at {:.3} ms",
+            made * 1e3
+        );
+    }
+    if let Some(settled) = r.contact_settled_s {
+        say!(
+            out,
+            "  contact closed for good (after bounce) at {:.3} ms",
+            settled * 1e3
+        );
+    }
+    say!(
+        out,
+        "  {} armature transition{}; {} at the end",
+        r.armature_transitions,
+        if r.armature_transitions == 1 { "" } else { "s" },
+        if r.operated_at_end {
+            "picked up"
+        } else {
+            "released"
+        }
+    );
 }
 
 #[cfg(test)]

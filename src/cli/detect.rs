@@ -26,7 +26,6 @@ pub(crate) struct DetectArgs {
 
 pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
     use sagtrip::detect::Detector;
-    let mut out = String::new();
     refuse_overwriting_inputs(
         &[
             ("--out", args.out.as_deref()),
@@ -90,99 +89,24 @@ pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
         )?;
     }
     if let Some(path) = &args.out {
-        write_atomic(path, |w| {
-            writeln!(
-                w,
-                "kind,start_s,duration_s,level_pct,ieee_1159,en_50160,phase_jump_deg,open_at_end"
-            )?;
-            for e in &d.events {
-                writeln!(
-                    w,
-                    "{},{},{},{},{},{},{},{}",
-                    e.kind.name(),
-                    e.start_s,
-                    e.duration_s,
-                    e.level_pct,
-                    e.ieee_1159.replace(',', ";"),
-                    e.en_50160.replace(',', ";"),
-                    e.phase_jump_deg.map_or(String::new(), |j| j.to_string()),
-                    e.open_at_end
-                )?;
-            }
-            Ok(())
-        })
-        .map_err(|err| format!("cannot write {}: {err}", path.display()))?;
+        write_atomic(path, |w| sagtrip::detect::write_events_csv(&d, w))
+            .map_err(|err| format!("cannot write {}: {err}", path.display()))?;
     }
-    let frequencies = d.frequency_intervals();
-    let (fmin, fmax) = frequencies
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &f| {
-            (a.min(f), b.max(f))
-        });
-    let fmean = frequencies.iter().sum::<f64>() / frequencies.len().max(1) as f64;
-    if args.json {
-        let value = serde_json::json!({
-            "recording": args.input.recording.display().to_string(),
-            "format": description,
-            "scale": how,
-            "declared_rms_v": declared,
-            "frequency_hz": frequency,
-            "declared_from": declared_how,
-            "duration_s": d.duration_s,
-            "samples": d.samples,
-            "measured_frequency_hz": { "mean": fmean, "min": fmin, "max": fmax },
-            "events": d.events,
-        });
-        say!(out, "{}", pretty_json(&value));
-        return Ok(out);
-    }
-    say!(
-        out,
-        "{}: {description}, {:.3} s",
-        args.input.recording.display(),
-        d.duration_s
-    );
-    say!(out, "scale: {how}");
-    say!(
-        out,
-        "declared {declared} V / {frequency} Hz ({declared_how}); measured frequency {fmean:.3} Hz (10 s intervals from {fmin:.3} to {fmax:.3} Hz, cycles near events left out)"
-    );
-    if d.events.is_empty() {
-        say!(out, "\nno dips, swells or interruptions");
+    let recording = args.input.recording.display().to_string();
+    let events_file = args.out.as_ref().map(|p| p.display().to_string());
+    let report = sagtrip::detect::DetectionReport {
+        recording: &recording,
+        format: &description,
+        scale: &how,
+        declared_v: declared,
+        frequency_hz: frequency,
+        declared_from: declared_how,
+        detection: &d,
+        events_file: events_file.as_deref(),
+    };
+    Ok(if args.json {
+        format!("{}\n", pretty_json(&report.json()))
     } else {
-        say!(
-            out,
-            "\n{:<13} {:>11} {:>11} {:>9}  {:<36} {:<8} {}",
-            "event",
-            "start (s)",
-            "duration",
-            "level",
-            "IEEE 1159",
-            "EN 50160",
-            "phase jump"
-        );
-        for e in &d.events {
-            say!(
-                out,
-                "{:<13} {:>11.4} {:>9.1}ms {:>8.2}%  {:<36} {:<8} {}{}",
-                e.kind.name(),
-                e.start_s,
-                e.duration_s * 1e3,
-                e.level_pct,
-                e.ieee_1159,
-                e.en_50160,
-                e.phase_jump_deg
-                    .map_or("-".to_string(), |j| format!("{j:+.1} deg")),
-                if e.open_at_end {
-                    " (still open at the end)"
-                } else {
-                    ""
-                }
-            );
-        }
-    }
-    if let Some(path) = &args.out {
-        say!(out, "\nevents written to {}", path.display());
-    }
-    Ok(out)
+        report.text()
+    })
 }

@@ -15,8 +15,8 @@ use sagtrip::engine::{Settings, Simulator, Start};
 use sagtrip::output::write_atomic;
 use sagtrip::probe::{Probe, Trace};
 use sagtrip::profile::{iec_presets, resolve, DEFAULT_EDGE_S};
-use sagtrip::scenario::{find_mains, run_event, EventOptions};
-use sagtrip::summary::{relay_timelines, settled_values};
+use sagtrip::scenario::{find_mains, run_event, EventOptions, EventReport};
+use sagtrip::summary::RunReport;
 use sagtrip::units::{parse_value, Engineering, Quantity};
 
 /// Appends a line to a report string (writing to a String cannot fail).

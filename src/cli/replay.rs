@@ -2,6 +2,7 @@
 
 use super::recording::*;
 use super::*;
+use sagtrip::scenario::ReplayReport;
 
 #[derive(Args)]
 pub(crate) struct ReplayArgs {
@@ -28,7 +29,6 @@ pub(crate) struct ReplayArgs {
 }
 
 pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
-    let mut out = String::new();
     refuse_overwriting_inputs(
         &[
             ("--trace", args.trace.as_deref()),
@@ -119,114 +119,19 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
         write_atomic(path, |w| trace.write_csv(&circuit, w))
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
     }
-    let tripped = replay.responses.iter().filter(|r| r.tripped).count();
-    if args.json {
-        let value = serde_json::json!({
-            "circuit": name,
-            "recording": args.input.recording.display().to_string(),
-            "format": description,
-            "scale": how,
-            "joined_at_s": replay.joined_at_s,
-            "duration_s": replay.duration_s,
-            "events": replay.responses,
-            "nuisance_trips": replay.nuisance_trips,
-            "trips": replay.trips,
-            "summary": {
-                "events": replay.responses.len(),
-                "events_tripped": tripped,
-                "events_ridden_through": replay.responses.len() - tripped,
-                "nuisance_trips": replay.nuisance_trips.len(),
-            },
-            "min_rail_v": replay.min_rail_v,
-            "stats": replay.stats,
-            "wall_time_s": wall,
-        });
-        say!(out, "{}", pretty_json(&value));
-        return Ok(out);
-    }
-    say!(out, "{name}: {}", circuit.title);
-    say!(
-        out,
-        "{}: {description}, {:.3} s; scale {how}; joined at {:.4} s",
-        args.input.recording.display(),
-        replay.duration_s,
-        replay.joined_at_s
-    );
-    if replay.responses.is_empty() {
-        say!(out, "\nno dips, swells or interruptions detected");
+    let recording = args.input.recording.display().to_string();
+    let report = ReplayReport {
+        name: &name,
+        title: &circuit.title,
+        recording: &recording,
+        format: &description,
+        scale: &how,
+        replay: &replay,
+        wall_s: wall,
+    };
+    Ok(if args.json {
+        format!("{}\n", pretty_json(&report.json()))
     } else {
-        say!(
-            out,
-            "\n{:<13} {:>10} {:>10} {:>10} {:>8}  {:<8} {:>12} {:>12}",
-            "event",
-            "start (s)",
-            "onset (s)",
-            "duration",
-            "level",
-            "tripped",
-            "trip after",
-            "reconnected"
-        );
-        for r in &replay.responses {
-            let e = &r.event;
-            say!(
-                out,
-                "{:<13} {:>10.4} {:>10} {:>8.1}ms {:>7.2}%  {:<8} {:>12} {:>12}",
-                e.kind.name(),
-                e.start_s,
-                e.wave_start_s.map_or("-".into(), |t| format!("{t:.4}")),
-                e.duration_s * 1e3,
-                e.level_pct,
-                match (r.tripped, r.chatter) {
-                    (_, true) => "chatters",
-                    (true, false) => "yes",
-                    (false, false) => "no",
-                },
-                r.trip_latency_ms
-                    .map_or("-".into(), |v| format!("{v:.1} ms")),
-                match (r.tripped, r.restore_latency_ms) {
-                    (_, Some(v)) => format!("{v:.1} ms"),
-                    (true, None) if r.reconnected_during_event => "during it".into(),
-                    (true, None) => "not by the end".into(),
-                    (false, None) => "-".into(),
-                },
-            );
-        }
-        say!(
-            out,
-            "(start: IEC 61000-4-30 Urms(1/2); onset: where the waveform departs from the cycle \
-             before. Trip and reconnection times count from the onset and the point-on-wave end, \
-             or from the Urms(1/2) start and end where the onset shows \"-\".)"
-        );
-    }
-    for t in &replay.nuisance_trips {
-        say!(
-            out,
-            "NUISANCE TRIP at {:.4} s with no detected event",
-            t.time_s
-        );
-    }
-    say!(
-        out,
-        "\n{} events: {} tripped, {} ridden through; {} nuisance trip{}; lowest rail {}",
-        replay.responses.len(),
-        tripped,
-        replay.responses.len() - tripped,
-        replay.nuisance_trips.len(),
-        if replay.nuisance_trips.len() == 1 {
-            ""
-        } else {
-            "s"
-        },
-        replay
-            .min_rail_v
-            .map_or("-".into(), |v| format!("{v:.3} V"))
-    );
-    say!(
-        out,
-        "(trip and reconnection times count from the event's detected start and end)\n{:.2} s wall, {:.0}x real time",
-        wall,
-        replay.duration_s / wall.max(1e-9)
-    );
-    Ok(out)
+        report.text()
+    })
 }

@@ -75,7 +75,6 @@ pub(crate) enum StartArg {
 }
 
 pub(crate) fn run(args: &RunArgs) -> Outcome {
-    let mut out = String::new();
     refuse_overwriting_inputs(
         &[("--trace", args.trace.as_deref())],
         &[args.circuit.as_deref()],
@@ -137,165 +136,28 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
         write_atomic(path, |w| trace.write_csv(&circuit, w))
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
     }
-
     // Settled values: over the last mains cycle, or the last tenth of the run.
-    let window = mains_hz.map_or(0.1 * duration, |f| (1.0 / f).min(duration));
-    let settled = settled_values(&circuit, &trace, window);
-    let relays = relay_timelines(&circuit, &trace);
-
-    if args.json {
-        let value = serde_json::json!({
-            "circuit": name,
-            "title": circuit.title,
-            "duration_s": duration,
-            "settled_window_s": window,
-            "probes": settled,
-            "relays": relays,
-            "events": trace.events.iter().map(|e| serde_json::json!({
-                "time_s": e.time,
-                "part": circuit.parts[e.part].name,
-                "kind": e.kind,
-            })).collect::<Vec<_>>(),
-            "stats": state.stats,
-            "wall_time_s": wall,
-            "trace": args.trace.as_ref().map(|p| p.display().to_string()),
-        });
-        say!(out, "{}", pretty_json(&value));
-        return Ok(out);
-    }
-
-    say!(
-        out,
-        "{name}{}",
-        if circuit.title.is_empty() {
-            String::new()
-        } else {
-            format!(": {}", circuit.title)
-        }
-    );
-    say!(
-        out,
-        "simulated {} from {} in {} steps ({:.3} s wall, {:.0}x real time)",
-        Engineering(duration, Quantity::Time),
-        match start {
-            Start::Rest => "rest",
-            Start::OperatingPoint => "the operating point",
-        },
-        state.stats.accepted_steps,
-        wall,
-        duration / wall.max(1e-9)
-    );
-    for r in &relays {
-        say!(out);
-        match (
-            r.first_pickup_s,
-            r.first_contact_made_s,
-            r.contact_settled_s,
-        ) {
-            (Some(pickup), made, settled) => {
-                say!(
-                    out,
-                    "relay `{}` first picked up at {:.3} ms",
-                    r.relay,
-                    pickup * 1e3
-                );
-                if let Some(made) = made {
-                    say!(
-                        out,
-                        "  normally-open contact first made at {:.3} ms",
-                        made * 1e3
-                    );
-                }
-                if let Some(settled) = settled {
-                    say!(
-                        out,
-                        "  contact closed for good (after bounce) at {:.3} ms",
-                        settled * 1e3
-                    );
-                }
-                say!(
-                    out,
-                    "  {} armature transition{}; {} at the end",
-                    r.armature_transitions,
-                    if r.armature_transitions == 1 { "" } else { "s" },
-                    if r.operated_at_end {
-                        "picked up"
-                    } else {
-                        "released"
-                    }
-                );
-            }
-            (None, ..) => {
-                say!(out, "relay `{}` never picked up", r.relay);
-            }
-        }
-    }
-    say!(
-        out,
-        "\nsettled values over the last {}:",
-        Engineering(window, Quantity::Time)
-    );
-    say!(
-        out,
-        "{:<22} {:>14} {:>14} {:>14} {:>14}",
-        "probe",
-        "mean",
-        "min",
-        "max",
-        "final"
-    );
-    for s in &settled {
-        say!(
-            out,
-            "{:<22} {:>14.6} {:>14.6} {:>14.6} {:>14.6}",
-            s.probe,
-            s.mean,
-            s.min,
-            s.max,
-            s.last
-        );
-    }
-    if !trace.events.is_empty() && args.events {
-        say!(out, "\ndiscrete events:");
-        for e in &trace.events {
-            say!(
-                out,
-                "  {:>12.6} ms  {:<14} {:?}",
-                e.time * 1e3,
-                circuit.parts[e.part].name,
-                e.kind
-            );
-        }
-    }
-    if args.stats {
-        let s = &state.stats;
-        say!(
-            out,
-            "\nsolver: {} accepted steps, {} rejected, {} Newton failures, {} Newton iterations, {} factorisations ({} with a new pivot order), {} restarts, {} located events",
-            s.accepted_steps,
-            s.rejected_steps,
-            s.newton_failures,
-            s.newton_iterations,
-            s.factorizations,
-            s.reorders,
-            s.restarts,
-            s.located_events
-        );
-    }
-    if let Some(path) = &args.trace {
-        say!(
-            out,
-            "\ntrace: {} rows x {} probes written to {}",
-            trace.time.len(),
-            trace.probes.len(),
-            path.display()
-        );
-    }
-    Ok(out)
+    let window_s = mains_hz.map_or(0.1 * duration, |f| (1.0 / f).min(duration));
+    let trace_file = args.trace.as_ref().map(|p| p.display().to_string());
+    let report = RunReport {
+        name: &name,
+        circuit: &circuit,
+        start,
+        duration_s: duration,
+        window_s,
+        trace: &trace,
+        stats: &state.stats,
+        wall_s: wall,
+        trace_file: trace_file.as_deref(),
+    };
+    Ok(if args.json {
+        format!("{}\n", pretty_json(&report.json()))
+    } else {
+        report.text(args.events, args.stats)
+    })
 }
 
 pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
-    let mut out = String::new();
     refuse_overwriting_inputs(
         &[
             ("--trace", args.trace.as_deref()),
@@ -377,139 +239,20 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
             || sagtrip::plot::event_svg(&result, &circuit, &name),
         )?;
     }
-    let m = &result.measurements;
-    if args.json {
-        let mut value = serde_json::to_value(m).unwrap_or_default();
-        if let serde_json::Value::Object(map) = &mut value {
-            let extra = serde_json::json!({
-                "circuit": name,
-                "event": result.event,
-                "nominal_rms_v": result.nominal_rms_v,
-                "frequency_hz": result.frequency_hz,
-                "phase_deg": profile.phase_deg,
-                "onset_s": result.onset_s,
-                "event_end_s": result.event_end_s,
-                "run_end_s": result.run_end_s,
-                "settled_at_s": result.settled_at_s,
-                "power_up_limit_s": result.settle_limit_s,
-                "restore_limit_s": result.restore_limit_s,
-                "settled_after": result.settled_after,
-                "min_rail_v": result.min_rail_v,
-                "rail": result.rail,
-                "comparator_toggles": result.comparator_toggles,
-                "stats": result.stats,
-                "wall_time_s": wall,
-                "trace": args.trace.as_ref().map(|p| p.display().to_string()),
-                "plot": args.plot.as_ref().map(|p| p.display().to_string()),
-            });
-            if let serde_json::Value::Object(extra) = extra {
-                map.extend(extra);
-            }
-        }
-        say!(out, "{}", pretty_json(&value));
-        return Ok(out);
-    }
-    let ms = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:.2} ms"));
-    say!(out, "{name}: {}", circuit.title);
-    say!(
-        out,
-        "event {} on {:.1} V / {} Hz, onset at {:.4} s (load connected and settled at {:.3} s), event end at {:.4} s",
-        result.event,
-        result.nominal_rms_v,
-        result.frequency_hz,
-        result.onset_s,
-        result.settled_at_s,
-        result.event_end_s
-    );
-    say!(out);
-    say!(
-        out,
-        "  tripped                 {}",
-        if m.tripped {
-            "yes"
-        } else {
-            "no (rode through)"
-        }
-    );
-    say!(out, "  trip latency            {}", ms(m.trip_latency_ms));
-    let restore = if m.tripped && !m.load_connected_at_end {
-        format!("not reconnected within {} s", result.restore_limit_s)
-    } else if m.tripped && m.restore_latency_ms.is_none() {
-        "- (reconnected for good before the event ended)".to_string()
-    } else {
-        ms(m.restore_latency_ms)
+    let trace_file = args.trace.as_ref().map(|p| p.display().to_string());
+    let plot_file = args.plot.as_ref().map(|p| p.display().to_string());
+    let report = EventReport {
+        name: &name,
+        title: &circuit.title,
+        run: &result,
+        phase_deg: profile.phase_deg,
+        wall_s: wall,
+        trace_file: trace_file.as_deref(),
+        plot_file: plot_file.as_deref(),
     };
-    say!(out, "  restore latency         {restore}");
-    if m.reconnections.len() > 1 || (m.tripped && m.restore_latency_ms.is_none()) {
-        for r in &m.reconnections {
-            let after = match (r.after_disturbance, r.latency_ms) {
-                (Some(k), Some(l)) => format!("{l:.2} ms after disturbance {k} ended"),
-                _ => "before the first disturbance ended".to_string(),
-            };
-            let during = if r.during_disturbance {
-                ", during a disturbance"
-            } else {
-                ""
-            };
-            say!(
-                out,
-                "  reconnected             {:.2} ms after onset ({after}{during})",
-                r.since_onset_ms
-            );
-        }
-    }
-    say!(out, "  relay release time      {}", ms(m.release_time_ms));
-    say!(out, "  relay operate time      {}", ms(m.operate_time_ms));
-    say!(out, "  contact bounce          {}", ms(m.bounce_ms));
-    say!(out, "  armature transitions    {}", m.relay_transitions);
-    say!(
-        out,
-        "  load path               opened {}, closed {} (bounce excluded)",
-        m.load_path_openings,
-        m.load_path_closings
-    );
-    say!(
-        out,
-        "  chatter                 {}",
-        if m.chatter {
-            "YES (the load path opened or closed more than once per disturbance)"
-        } else {
-            "no"
-        }
-    );
-    say!(
-        out,
-        "  load interruption       {:.2} ms",
-        m.load_interruption_ms
-    );
-    if let (Some(v), Some(rail)) = (result.min_rail_v, &result.rail) {
-        say!(out, "  minimum rail ({rail})      {v:.3} V");
-    }
-    for (comparator, n) in &result.comparator_toggles {
-        say!(out, "  {comparator:<22}  {n} output toggles");
-    }
-    say!(
-        out,
-        "\nrun ended at {:.3} s ({}); {} steps, {:.3} s wall",
-        result.run_end_s,
-        if result.settled_after {
-            "restored and settled"
-        } else {
-            "limit reached before the protector restored and settled"
-        },
-        result.stats.accepted_steps,
-        wall
-    );
-    if let Some(path) = &args.trace {
-        say!(
-            out,
-            "trace: {} rows written to {}",
-            result.trace.time.len(),
-            path.display()
-        );
-    }
-    if let Some(path) = &args.plot {
-        say!(out, "plot: {}", path.display());
-    }
-    Ok(out)
+    Ok(if args.json {
+        format!("{}\n", pretty_json(&report.json()))
+    } else {
+        report.text()
+    })
 }

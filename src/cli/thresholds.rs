@@ -31,8 +31,7 @@ pub(crate) struct ThresholdsArgs {
 }
 
 pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Outcome {
-    use sagtrip::thresholds::{find, SideThresholds, ThresholdOptions};
-    let mut out = String::new();
+    use sagtrip::thresholds::{find, ThresholdOptions, ThresholdsReport};
     refuse_overwriting_inputs(
         &[("--plot", args.plot.as_deref())],
         &[args.circuit.as_deref()],
@@ -71,117 +70,16 @@ pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Outcome {
         )?;
     }
     let wall = started.elapsed().as_secs_f64();
-    if args.json {
-        let mut value = serde_json::to_value(&result).unwrap_or_default();
-        value["circuit"] = serde_json::json!(name);
-        value["wall_time_s"] = serde_json::json!(wall);
-        say!(out, "{}", pretty_json(&value));
-        return Ok(out);
-    }
-    say!(out, "{name}: {}", circuit.title);
-    say!(
-        out,
-        "static thresholds on a {:.1} V {:.0} Hz supply: each level held {} s, bisection to {} V",
-        result.nominal_rms_v,
-        result.frequency_hz,
-        result.hold_s,
-        result.resolution_v
-    );
-    say!(
-        out,
-        "\n{:<6} {:>10} {:>8} {:>10} {:>8} {:>11} {:>6}",
-        "side",
-        "trip (V)",
-        "trip %",
-        "reset (V)",
-        "reset %",
-        "hysteresis",
-        "tests"
-    );
-    let label = |s: &SideThresholds| match s.side {
-        sagtrip::thresholds::Side::Under => "under",
-        sagtrip::thresholds::Side::Over => "over",
+    let report = ThresholdsReport {
+        name: &name,
+        title: &circuit.title,
+        result: &result,
+        ramp_s: threshold_options.ramp_s,
+        wall_s: wall,
     };
-    for s in [&result.under, &result.over] {
-        let v = |t: Option<sagtrip::thresholds::Threshold>| {
-            t.map_or(("-".to_string(), "-".to_string()), |t| {
-                (format!("{:.1}", t.volts), format!("{:.2}", t.percent))
-            })
-        };
-        let (tv, tp) = v(s.trip);
-        let (rv, rp) = v(s.reset);
-        let tests = s.trip.map_or(0, |t| t.tests) + s.reset.map_or(0, |t| t.tests);
-        say!(
-            out,
-            "{:<6} {:>10} {:>8} {:>10} {:>8} {:>11} {:>6}",
-            label(s),
-            tv,
-            tp,
-            rv,
-            rp,
-            s.hysteresis_v
-                .map_or("-".to_string(), |h| format!("{h:.1} V")),
-            tests
-        );
-    }
-    for s in [&result.under, &result.over] {
-        if let Some(note) = &s.note {
-            say!(out, "{}: {note}", label(s));
-        }
-    }
-    let ramps: Vec<_> = [&result.under, &result.over]
-        .into_iter()
-        .filter_map(|s| s.ramp.as_ref().map(|r| (label(s), r)))
-        .collect();
-    if !ramps.is_empty() {
-        say!(
-            out,
-            "\nslow ramps: from nominal over {} s to 5% beyond the trip, held {} s, back over {} s",
-            threshold_options.ramp_s,
-            threshold_options.hold_s,
-            threshold_options.ramp_s
-        );
-        say!(
-            out,
-            "{:<6} {:>9} {:>12} {:>12} {:>12}  {}",
-            "side",
-            "rate V/s",
-            "opened at",
-            "closed at",
-            "armature",
-            "chatter"
-        );
-        for (side, r) in ramps {
-            let volts = |v: Option<f64>| v.map_or("-".to_string(), |v| format!("{v:.1} V"));
-            let toggles: Vec<String> = r
-                .comparator_toggles
-                .iter()
-                .map(|(n, k)| format!("{n} {k}"))
-                .collect();
-            let verdict = if r.relay_chatters {
-                "load path chatters"
-            } else if r.most_toggles() > 2 {
-                "none, but a comparator toggled (a slower ramp may make the load path chatter)"
-            } else {
-                "none"
-            };
-            say!(
-                out,
-                "{:<6} {:>9.2} {:>12} {:>12} {:>12}  {verdict} (comparator toggles: {})",
-                side,
-                r.rate_v_per_s,
-                volts(r.trip_v),
-                volts(r.reconnect_v),
-                format!("{} moves", r.relay_transitions),
-                toggles.join(", ")
-            );
-        }
-        say!(
-            out,
-            "(the load opens and closes after the protector's own delays, so on a ramp it does \
-             so beyond the static voltages by the ramp rate times the delay)"
-        );
-    }
-    say!(out, "\n{wall:.1} s wall");
-    Ok(out)
+    Ok(if args.json {
+        format!("{}\n", pretty_json(&report.json()))
+    } else {
+        report.text()
+    })
 }

@@ -22,9 +22,11 @@ use std::collections::VecDeque;
 mod classes;
 mod detector;
 mod frequency;
+mod report;
 pub use classes::*;
 pub use detector::*;
 pub use frequency::*;
+pub use report::*;
 
 /// The resolution at which Urms(1/2) is reported and judged, percent of the declared
 /// voltage: every threshold test and every class is taken on the value as reported (a dip

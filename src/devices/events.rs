@@ -28,6 +28,24 @@ pub enum EventKind {
     TimerReset,
 }
 
+impl EventKind {
+    /// The event in words a user reads (`armature picked up`).
+    pub fn describe(self) -> &'static str {
+        match self {
+            EventKind::SwitchClosed => "switch closed",
+            EventKind::SwitchOpened => "switch opened",
+            EventKind::PickUp => "armature picked up",
+            EventKind::DropOut => "armature dropped out",
+            EventKind::NormallyOpenMade => "normally-open contact made",
+            EventKind::NormallyOpenBroken => "normally-open contact broke",
+            EventKind::NormallyClosedMade => "normally-closed contact made",
+            EventKind::NormallyClosedBroken => "normally-closed contact broke",
+            EventKind::TimerSet => "timer output set (high)",
+            EventKind::TimerReset => "timer output reset (low)",
+        }
+    }
+}
+
 /// A contact change a relay schedules after an armature movement.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum ContactAction {

@@ -92,7 +92,9 @@ pub fn open_scaled(
         lead.push(s?);
     }
     let (factor, how, calibrated_to) = match scale {
-        Some(Scale::VoltsPerFullScale(v)) => (v, format!("{v} V per full scale (given)"), None),
+        Some(Scale::VoltsPerFullScale(v)) => {
+            (v, format!("{v} V per full-scale sample (given)"), None)
+        }
         Some(Scale::CalibrateTo(target)) => {
             let rms =
                 whole_cycle_rms(&lead)
@@ -103,7 +105,7 @@ pub fn open_scaled(
             (
                 target / rms,
                 format!(
-                    "{:.6} per unit (calibrated: the first whole cycles read {target} V rms)",
+                    "{:.6} V per full-scale sample (calibrated: the first whole cycles read {target} V rms)",
                     target / rms
                 ),
                 Some(target),

@@ -14,9 +14,11 @@ use serde::Serialize;
 
 mod event;
 mod replay;
+mod report;
 mod settle;
 pub use event::*;
 pub use replay::*;
+pub use report::*;
 pub use settle::*;
 
 /// The supply the profile drives.

@@ -8,16 +8,6 @@ use super::{
     cells, in_grid_order, BoundaryPoint, Cell, DurationBoundaryPoint, Grid, Outcome, Point,
 };
 
-/// Appends a line (writing to a String cannot fail).
-macro_rules! say {
-    ($out:expr) => {
-        let _ = writeln!($out);
-    };
-    ($out:expr, $($arg:tt)*) => {
-        let _ = writeln!($out, $($arg)*);
-    };
-}
-
 /// Everything a sweep report shows.
 pub struct Report<'a> {
     /// The circuit's name (its file, or the built-in guard).

@@ -13,6 +13,9 @@ use crate::circuit::Circuit;
 use crate::profile::{Duration, Profile, Step, DEFAULT_EDGE_S};
 use crate::scenario::{EventRun, ScenarioError, Settled};
 
+mod report;
+pub use report::*;
+
 /// How thresholds are searched.
 #[derive(Clone, Debug)]
 pub struct ThresholdOptions {
