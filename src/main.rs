@@ -39,8 +39,8 @@ enum Command {
     /// Simulate a circuit: a power-up, or with --event a supply disturbance and the
     /// protector's measured response.
     Run(Box<RunArgs>),
-    /// List the built-in IEC 61000-4-11 test profiles usable with --event.
-    Profiles,
+    /// List the built-in IEC 61000-4-11 tests (presets) usable with --event.
+    Presets,
     /// Write a supply event as a WAV recording (to drive a bench amplifier or a waveform
     /// source, or to replay).
     Synth(SynthArgs),
@@ -72,7 +72,7 @@ fn main() -> ExitCode {
                 cli::run::run(&args)
             }
         }
-        Command::Profiles => Ok(cli::presets::profiles()),
+        Command::Presets => Ok(cli::presets::presets()),
         Command::Synth(args) => cli::synth::synth(&args),
         Command::Sweep(args) => cli::sweep::sweep(&args),
         Command::Merge(args) => cli::merge::merge(&args),

@@ -211,8 +211,8 @@ fn check_without_a_circuit_lists_the_reference_guard() {
 }
 
 #[test]
-fn profiles_lists_the_iec_tests_and_synth_writes_a_wav() {
-    let out = sagtrip(&["profiles"]);
+fn presets_lists_the_iec_tests_and_synth_writes_a_wav() {
+    let out = sagtrip(&["presets"]);
     let text = String::from_utf8(out.stdout).unwrap();
     assert!(text.contains("class3-dip-40"));
     assert!(text.contains("IEC 61000-4-11 Table 1"));
@@ -912,7 +912,7 @@ fn detect_takes_the_declared_supply_from_the_recording() {
 fn exit_codes_tell_input_mistakes_from_failed_runs() {
     // 0 success, 1 a run that could not give an answer, 2 a mistake in the input
     // (the README's table of exit codes).
-    assert_eq!(sagtrip(&["profiles"]).status.code(), Some(0));
+    assert_eq!(sagtrip(&["presets"]).status.code(), Some(0));
     assert_eq!(sagtrip(&["run", "--bogus"]).status.code(), Some(2));
     let missing = sagtrip(&["run", "--circuit", "no-such-circuit.toml"]);
     assert_eq!(missing.status.code(), Some(2));

@@ -1,8 +1,8 @@
-//! `sagtrip profiles`: the built-in IEC 61000-4-11 tests.
+//! `sagtrip presets`: the built-in IEC 61000-4-11 tests.
 
 use super::*;
 
-pub(crate) fn profiles() -> String {
+pub(crate) fn presets() -> String {
     let mut out = String::new();
     say!(
         out,

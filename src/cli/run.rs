@@ -37,7 +37,7 @@ pub(crate) struct RunArgs {
     /// Supply disturbance to apply after power-up: a compact spec such as
     /// dip:40%:10cyc@90, interrupt:250cyc, swell:120%:25cyc, vary:70%:0cyc/1cyc/25cyc,
     /// ramp:100%-65%:20s (items joined by `;`, with gap:DURATION between), or a preset name
-    /// from `sagtrip profiles` such as class3-dip-40 (optionally @DEGREES).
+    /// from `sagtrip presets` such as class3-dip-40 (optionally @DEGREES).
     #[arg(long, conflicts_with = "event_file")]
     pub(crate) event: Option<String>,
     /// Supply event from a TOML event file (a sequence; see docs/events.md).

@@ -165,134 +165,138 @@ pub fn parse_spec(spec: &str, edge_s: f64) -> Result<Profile, SpecError> {
                     )
                 })?;
         }
-        let mut fields = Vec::new();
-        let mut at = item_at;
-        for part in body.split(':') {
-            fields.push(Field { text: part, at });
-            at += part.len() + 1;
-        }
-        let kind = fields[0];
-        let expect = |n: usize, form: &str| -> Result<(), SpecError> {
-            if fields.len() != n {
-                Err(spec_error(
-                    spec,
-                    item_at,
-                    body.len(),
-                    format!("`{}` takes the form {form}", kind.text.trim()),
-                ))
-            } else {
-                Ok(())
-            }
-        };
-        let step = match kind.text.trim() {
-            "dip" => {
-                expect(3, "dip:RESIDUAL%:DURATION")?;
-                let residual = parse_level(spec, fields[1])?;
-                if residual >= 1.0 {
-                    return Err(spec_error(
-                        spec,
-                        fields[1].at,
-                        fields[1].text.len(),
-                        "a dip's residual is below 100% (use swell: above it)",
-                    ));
-                }
-                Step::Dip {
-                    residual,
-                    duration: parse_duration(spec, fields[2])?,
-                }
-            }
-            "interrupt" => {
-                expect(2, "interrupt:DURATION")?;
-                Step::Dip {
-                    residual: 0.0,
-                    duration: parse_duration(spec, fields[1])?,
-                }
-            }
-            "swell" => {
-                expect(3, "swell:LEVEL%:DURATION")?;
-                let level = parse_level(spec, fields[1])?;
-                if level <= 1.0 {
-                    return Err(spec_error(
-                        spec,
-                        fields[1].at,
-                        fields[1].text.len(),
-                        "a swell's level is above 100% (use dip: below it)",
-                    ));
-                }
-                Step::Swell {
-                    level,
-                    duration: parse_duration(spec, fields[2])?,
-                }
-            }
-            "vary" => {
-                expect(3, "vary:RESIDUAL%:DECREASE/HOLD/INCREASE")?;
-                let residual = parse_level(spec, fields[1])?;
-                let times: Vec<&str> = fields[2].text.split('/').collect();
-                if times.len() != 3 {
-                    return Err(spec_error(
-                        spec,
-                        fields[2].at,
-                        fields[2].text.len(),
-                        "three durations: DECREASE/HOLD/INCREASE, e.g. 0cyc/1cyc/25cyc",
-                    ));
-                }
-                let mut at = fields[2].at;
-                let mut parsed = Vec::new();
-                for t in times {
-                    parsed.push(parse_duration(spec, Field { text: t, at })?);
-                    at += t.len() + 1;
-                }
-                Step::Variation {
-                    residual,
-                    decrease: parsed[0],
-                    hold: parsed[1],
-                    increase: parsed[2],
-                }
-            }
-            "ramp" => {
-                expect(3, "ramp:FROM%-TO%:DURATION")?;
-                let Some((from, to)) = fields[1].text.split_once('-') else {
-                    return Err(spec_error(
-                        spec,
-                        fields[1].at,
-                        fields[1].text.len(),
-                        "a ramp's levels are FROM%-TO%, e.g. 100%-65%",
-                    ));
-                };
-                Step::Ramp {
-                    from: parse_level(spec, Field { text: from, at: fields[1].at })?,
-                    to: parse_level(
-                        spec,
-                        Field {
-                            text: to,
-                            at: fields[1].at + from.len() + 1,
-                        },
-                    )?,
-                    duration: parse_duration(spec, fields[2])?,
-                }
-            }
-            "gap" => {
-                expect(2, "gap:DURATION")?;
-                Step::Gap {
-                    duration: parse_duration(spec, fields[1])?,
-                }
-            }
-            other => {
-                return Err(spec_error(
-                    spec,
-                    kind.at,
-                    kind.text.len(),
-                    format!(
-                        "unknown event kind `{other}` (dip, interrupt, swell, vary, ramp, gap, or a preset name: see `sagtrip profiles`)"
-                    ),
-                ))
-            }
-        };
-        steps.push(step);
+        steps.push(parse_step(spec, item_at, body)?);
     }
     Ok(Profile {
         steps,
         phase_deg,
         edge_s,
+    })
+}
+
+/// One item of a compact spec (without its phase suffix), which starts at byte `item_at`.
+fn parse_step(spec: &str, item_at: usize, body: &str) -> Result<Step, SpecError> {
+    let mut fields = Vec::new();
+    let mut at = item_at;
+    for part in body.split(':') {
+        fields.push(Field { text: part, at });
+        at += part.len() + 1;
+    }
+    let kind = fields[0];
+    let expect = |n: usize, form: &str| -> Result<(), SpecError> {
+        if fields.len() != n {
+            Err(spec_error(
+                spec,
+                item_at,
+                body.len(),
+                format!("`{}` takes the form {form}", kind.text.trim()),
+            ))
+        } else {
+            Ok(())
+        }
+    };
+    Ok(match kind.text.trim() {
+        "dip" => {
+            expect(3, "dip:RESIDUAL%:DURATION")?;
+            let residual = parse_level(spec, fields[1])?;
+            if residual >= 1.0 {
+                return Err(spec_error(
+                    spec,
+                    fields[1].at,
+                    fields[1].text.len(),
+                    "a dip's residual is below 100% (use swell: above it)",
+                ));
+            }
+            Step::Dip {
+                residual,
+                duration: parse_duration(spec, fields[2])?,
+            }
+        }
+        "interrupt" => {
+            expect(2, "interrupt:DURATION")?;
+            Step::Dip {
+                residual: 0.0,
+                duration: parse_duration(spec, fields[1])?,
+            }
+        }
+        "swell" => {
+            expect(3, "swell:LEVEL%:DURATION")?;
+            let level = parse_level(spec, fields[1])?;
+            if level <= 1.0 {
+                return Err(spec_error(
+                    spec,
+                    fields[1].at,
+                    fields[1].text.len(),
+                    "a swell's level is above 100% (use dip: below it)",
+                ));
+            }
+            Step::Swell {
+                level,
+                duration: parse_duration(spec, fields[2])?,
+            }
+        }
+        "vary" => {
+            expect(3, "vary:RESIDUAL%:DECREASE/HOLD/INCREASE")?;
+            let residual = parse_level(spec, fields[1])?;
+            let times: Vec<&str> = fields[2].text.split('/').collect();
+            if times.len() != 3 {
+                return Err(spec_error(
+                    spec,
+                    fields[2].at,
+                    fields[2].text.len(),
+                    "three durations: DECREASE/HOLD/INCREASE, e.g. 0cyc/1cyc/25cyc",
+                ));
+            }
+            let mut at = fields[2].at;
+            let mut parsed = Vec::new();
+            for t in times {
+                parsed.push(parse_duration(spec, Field { text: t, at })?);
+                at += t.len() + 1;
+            }
+            Step::Variation {
+                residual,
+                decrease: parsed[0],
+                hold: parsed[1],
+                increase: parsed[2],
+            }
+        }
+        "ramp" => {
+            expect(3, "ramp:FROM%-TO%:DURATION")?;
+            let Some((from, to)) = fields[1].text.split_once('-') else {
+                return Err(spec_error(
+                    spec,
+                    fields[1].at,
+                    fields[1].text.len(),
+                    "a ramp's levels are FROM%-TO%, e.g. 100%-65%",
+                ));
+            };
+            Step::Ramp {
+                from: parse_level(spec, Field { text: from, at: fields[1].at })?,
+                to: parse_level(
+                    spec,
+                    Field {
+                        text: to,
+                        at: fields[1].at + from.len() + 1,
+                    },
+                )?,
+                duration: parse_duration(spec, fields[2])?,
+            }
+        }
+        "gap" => {
+            expect(2, "gap:DURATION")?;
+            Step::Gap {
+                duration: parse_duration(spec, fields[1])?,
+            }
+        }
+        other => {
+            return Err(spec_error(
+                spec,
+                kind.at,
+                kind.text.len(),
+                format!(
+                    "unknown event kind `{other}` (dip, interrupt, swell, vary, ramp, gap, or a preset name: see `sagtrip presets`)"
+                ),
+            ))
+        }
     })
 }

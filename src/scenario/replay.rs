@@ -136,6 +136,34 @@ impl Settled {
         self.replay_with_progress(samples, rate, thresholds, probes, &mut |_| {})
     }
 
+    /// Plays one chunk of recorded samples, the first at simulation time `start_s`, as the
+    /// mains source's waveform, up to its last sample.
+    fn play_chunk(
+        &self,
+        sim: &mut Simulator,
+        state: &mut SimState,
+        watch: &mut ReplayWatch<'_>,
+        buffer: &[f64],
+        start_s: f64,
+        rate: f64,
+    ) -> Result<(), ReplayError> {
+        sim.set_source_waveform(
+            self.mains.part,
+            Waveform::Samples {
+                start_s,
+                interval_s: 1.0 / rate,
+                values: buffer.into(),
+            },
+        )
+        .map_err(ReplayError::Simulation)?;
+        let end = start_s + (buffer.len() - 1) as f64 / rate;
+        if end > state.time {
+            sim.advance(state, end, watch)
+                .map_err(ReplayError::Simulation)?;
+        }
+        Ok(())
+    }
+
     /// As [`Settled::replay`], calling `progress` with the seconds of recording simulated so
     /// far after each one-second chunk (for a progress display on long recordings).
     pub fn replay_with_progress<E: std::fmt::Display>(
@@ -178,30 +206,6 @@ impl Settled {
         // Sim time minus recording time, once joined; index of buffer[0].
         let mut shift: Option<f64> = None;
         let mut first_index = 0usize;
-        let flush = |sim: &mut Simulator,
-                     state: &mut SimState,
-                     watch: &mut ReplayWatch<'_>,
-                     buffer: &[f64],
-                     first_index: usize,
-                     shift: f64|
-         -> Result<(), ReplayError> {
-            let start_s = first_index as f64 / rate + shift;
-            sim.set_source_waveform(
-                self.mains.part,
-                Waveform::Samples {
-                    start_s,
-                    interval_s: 1.0 / rate,
-                    values: buffer.into(),
-                },
-            )
-            .map_err(ReplayError::Simulation)?;
-            let end = start_s + (buffer.len() - 1) as f64 / rate;
-            if end > state.time {
-                sim.advance(state, end, watch)
-                    .map_err(ReplayError::Simulation)?;
-            }
-            Ok(())
-        };
         for (index, sample) in samples.enumerate() {
             let v = sample.map_err(|e| ReplayError::Sample {
                 index,
@@ -223,7 +227,8 @@ impl Settled {
                 Some(s) => {
                     buffer.push(v);
                     if buffer.len() > chunk {
-                        flush(&mut sim, &mut state, &mut watch, &buffer, first_index, s)?;
+                        let start_s = first_index as f64 / rate + s;
+                        self.play_chunk(&mut sim, &mut state, &mut watch, &buffer, start_s, rate)?;
                         progress((index + 1) as f64 / rate);
                         let last = buffer[buffer.len() - 1];
                         first_index += buffer.len() - 1;
@@ -236,14 +241,8 @@ impl Settled {
         }
         let shift = shift.ok_or(ReplayError::NoCrossing)?;
         if buffer.len() >= 2 {
-            flush(
-                &mut sim,
-                &mut state,
-                &mut watch,
-                &buffer,
-                first_index,
-                shift,
-            )?;
+            let start_s = first_index as f64 / rate + shift;
+            self.play_chunk(&mut sim, &mut state, &mut watch, &buffer, start_s, rate)?;
         }
         let detection = detector.finish();
         let min_rail_v = watch.min_rail.is_finite().then_some(watch.min_rail);
@@ -258,62 +257,7 @@ impl Settled {
                 reconnected_s: o.reconnected_s.map(to_rec),
             })
             .collect();
-        // Trips are assigned to the events they follow; more than one opening or
-        // reconnection for an event is chatter.
-        let mut assigned = vec![false; trips.len()];
-        let mut responses = Vec::new();
-        for event in &detection.events {
-            let end = event.start_s + event.duration_s;
-            // Latencies count from the point-on-wave start and end, as `run` counts from
-            // the event's true onset and end. Without a clean departure in the waveform,
-            // from the start of the first Urms(1/2) window past the threshold (one cycle
-            // before its time stamp: the onset lies in that window) and the Urms(1/2) end.
-            let (onset, onset_from) = match event.wave_start_s {
-                Some(t) => (t, LatencyReference::PointOnWave),
-                None => (event.start_s - period, LatencyReference::UrmsHalfCycle),
-            };
-            let wave_end = match (event.wave_start_s, event.wave_end_s) {
-                (Some(_), Some(t)) => t,
-                _ => end,
-            };
-            // Every trip from the onset to a second after the end belongs to the event.
-            let mine: Vec<usize> = (0..trips.len())
-                .filter(|&i| {
-                    !assigned[i] && trips[i].time_s >= onset && trips[i].time_s <= end + 1.0
-                })
-                .collect();
-            for &i in &mine {
-                assigned[i] = true;
-            }
-            let openings: Vec<crate::measure::Opening> = mine
-                .iter()
-                .map(|&i| crate::measure::Opening {
-                    opened_s: trips[i].time_s,
-                    reconnected_s: trips[i].reconnected_s,
-                })
-                .collect();
-            let trip = mine.first().map(|&i| trips[i].clone());
-            let reconnected = mine.last().and_then(|&i| trips[i].reconnected_s);
-            responses.push(EventResponse {
-                event: event.clone(),
-                tripped: trip.is_some(),
-                latencies_from: onset_from,
-                trip_latency_ms: trip.as_ref().map(|t| (t.time_s - onset) * 1e3),
-                restore_latency_ms: reconnected
-                    .filter(|&r| r >= wave_end)
-                    .map(|r| (r - wave_end) * 1e3),
-                reconnected_during_event: reconnected.is_some_and(|r| r < wave_end),
-                openings: openings.len(),
-                chatter: crate::measure::chatters(&openings, 1),
-                trip,
-            });
-        }
-        let nuisance_trips = trips
-            .iter()
-            .zip(&assigned)
-            .filter(|(_, a)| !**a)
-            .map(|(t, _)| t.clone())
-            .collect();
+        let (responses, nuisance_trips) = assign_trips(&detection.events, &trips, period);
         let mut stats = state.stats;
         stats.accepted_steps -= before.accepted_steps;
         stats.newton_iterations -= before.newton_iterations;
@@ -337,4 +281,69 @@ impl Settled {
             trace,
         })
     }
+}
+
+/// Assigns each trip to the detected event it follows (from the event's onset to a second
+/// after its end) and measures each event's response; more than one opening or reconnection
+/// for an event is chatter. The trips no event explains are returned as nuisance trips.
+fn assign_trips(
+    events: &[crate::detect::Event],
+    trips: &[ReplayTrip],
+    period: f64,
+) -> (Vec<EventResponse>, Vec<ReplayTrip>) {
+    // Trips are assigned to the events they follow; more than one opening or
+    // reconnection for an event is chatter.
+    let mut assigned = vec![false; trips.len()];
+    let mut responses = Vec::new();
+    for event in events {
+        let end = event.start_s + event.duration_s;
+        // Latencies count from the point-on-wave start and end, as `run` counts from
+        // the event's true onset and end. Without a clean departure in the waveform,
+        // from the start of the first Urms(1/2) window past the threshold (one cycle
+        // before its time stamp: the onset lies in that window) and the Urms(1/2) end.
+        let (onset, onset_from) = match event.wave_start_s {
+            Some(t) => (t, LatencyReference::PointOnWave),
+            None => (event.start_s - period, LatencyReference::UrmsHalfCycle),
+        };
+        let wave_end = match (event.wave_start_s, event.wave_end_s) {
+            (Some(_), Some(t)) => t,
+            _ => end,
+        };
+        // Every trip from the onset to a second after the end belongs to the event.
+        let mine: Vec<usize> = (0..trips.len())
+            .filter(|&i| !assigned[i] && trips[i].time_s >= onset && trips[i].time_s <= end + 1.0)
+            .collect();
+        for &i in &mine {
+            assigned[i] = true;
+        }
+        let openings: Vec<crate::measure::Opening> = mine
+            .iter()
+            .map(|&i| crate::measure::Opening {
+                opened_s: trips[i].time_s,
+                reconnected_s: trips[i].reconnected_s,
+            })
+            .collect();
+        let trip = mine.first().map(|&i| trips[i].clone());
+        let reconnected = mine.last().and_then(|&i| trips[i].reconnected_s);
+        responses.push(EventResponse {
+            event: event.clone(),
+            tripped: trip.is_some(),
+            latencies_from: onset_from,
+            trip_latency_ms: trip.as_ref().map(|t| (t.time_s - onset) * 1e3),
+            restore_latency_ms: reconnected
+                .filter(|&r| r >= wave_end)
+                .map(|r| (r - wave_end) * 1e3),
+            reconnected_during_event: reconnected.is_some_and(|r| r < wave_end),
+            openings: openings.len(),
+            chatter: crate::measure::chatters(&openings, 1),
+            trip,
+        });
+    }
+    let nuisance_trips = trips
+        .iter()
+        .zip(&assigned)
+        .filter(|(_, a)| !**a)
+        .map(|(t, _)| t.clone())
+        .collect();
+    (responses, nuisance_trips)
 }
