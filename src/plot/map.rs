@@ -1,6 +1,8 @@
 //! The trip map: cells by outcome, boundaries, reference curves.
 
 use super::*;
+use plotters::coord::combinators::LogCoord;
+use plotters::coord::types::RangedCoordf64;
 
 /// What a trip map shows.
 pub struct MapData<'a> {
@@ -57,7 +59,6 @@ fn draw_map<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     map: &MapData<'_>,
 ) -> Result<(), PlotError> {
-    use crate::sweep::Outcome;
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let x_edges = edges(map.durations_s, true);
@@ -89,6 +90,27 @@ fn draw_map<DB: DrawingBackend>(
         .light_line_style(RGBColor(235, 235, 235))
         .draw()
         .map_err(e)?;
+    draw_cells(&mut chart, map, &x_edges, &y_edges)?;
+    draw_references(&mut chart, map, (x0, x1), y_top)?;
+    draw_boundaries(&mut chart, map, (x0, x1), y_top)?;
+    legend(&mut chart, SeriesLabelPosition::LowerRight)?;
+    root.present().map_err(e)?;
+    Ok(())
+}
+
+/// The map's chart: log duration across, level up.
+type MapChart<'a, DB> = ChartContext<'a, DB, Cartesian2d<LogCoord<f64>, RangedCoordf64>>;
+
+/// The grid's cells, coloured by outcome and labelled with the worst trip latency, and the
+/// outcomes' legend entries.
+fn draw_cells<DB: DrawingBackend>(
+    chart: &mut MapChart<'_, DB>,
+    map: &MapData<'_>,
+    x_edges: &[f64],
+    y_edges: &[f64],
+) -> Result<(), PlotError> {
+    use crate::sweep::Outcome;
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     let colour = |o: Outcome| match o {
         Outcome::RidesThrough => RGBColor(200, 235, 200),
         Outcome::Trips => RGBColor(250, 200, 170),
@@ -140,6 +162,17 @@ fn draw_map<DB: DrawingBackend>(
             .label(label)
             .legend(move |(x, y)| Rectangle::new([(x, y - 5), (x + 14, y + 5)], c.filled()));
     }
+    Ok(())
+}
+
+/// The published reference curves and the IEC 61000-4-11 test points.
+fn draw_references<DB: DrawingBackend>(
+    chart: &mut MapChart<'_, DB>,
+    map: &MapData<'_>,
+    (x0, x1): (f64, f64),
+    y_top: f64,
+) -> Result<(), PlotError> {
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     // Reference curves.
     let styles = [
         ShapeStyle::from(&BLACK).stroke_width(2),
@@ -171,6 +204,17 @@ fn draw_map<DB: DrawingBackend>(
         .map_err(e)?
         .label("IEC 61000-4-11 class 2/3 test levels")
         .legend(|(x, y)| TriangleMarker::new((x + 7, y), 6, RGBColor(214, 39, 40).filled()));
+    Ok(())
+}
+
+/// The refined level boundaries and the longest ride-through per level.
+fn draw_boundaries<DB: DrawingBackend>(
+    chart: &mut MapChart<'_, DB>,
+    map: &MapData<'_>,
+    (x0, x1): (f64, f64),
+    y_top: f64,
+) -> Result<(), PlotError> {
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     // Refined boundaries.
     for (k, list) in map.boundaries.iter().enumerate() {
         let points: Vec<(f64, f64)> = list
@@ -230,8 +274,6 @@ fn draw_map<DB: DrawingBackend>(
                 .legend(move |(x, y)| Cross::new((x + 7, y), 5, style));
         }
     }
-    legend(&mut chart, SeriesLabelPosition::LowerRight)?;
-    root.present().map_err(e)?;
     Ok(())
 }
 

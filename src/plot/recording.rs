@@ -39,13 +39,34 @@ fn draw_recording<DB: DrawingBackend>(
     root: DrawingArea<DB, Shift>,
     p: &RecordingPlot<'_>,
 ) -> Result<(), PlotError> {
-    use crate::detect::EventKind as K;
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     root.fill(&WHITE).map_err(e)?;
     let root = root
         .titled(&p.title, ("sans-serif", title_size(&p.title, 1100)))
         .map_err(e)?;
     let (top, bottom) = root.split_vertically(430);
+    let y_max = p
+        .detection
+        .half_cycles
+        .iter()
+        .map(|h| 100.0 * h.rms_v / p.declared_v)
+        .fold(120.0_f64, f64::max)
+        + 5.0;
+    draw_urms_panel(&top, p, y_max)?;
+    draw_iti_panel(&bottom, p, y_max)?;
+    root.present().map_err(e)?;
+    Ok(())
+}
+
+/// The upper panel: Urms(1/2) over time, the events shaded, the thresholds, the trips and
+/// reconnections.
+fn draw_urms_panel<DB: DrawingBackend>(
+    top: &DrawingArea<DB, Shift>,
+    p: &RecordingPlot<'_>,
+    y_max: f64,
+) -> Result<(), PlotError> {
+    use crate::detect::EventKind as K;
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     // Urms(1/2) over time.
     let points: Vec<(f64, f64)> = p
         .detection
@@ -57,8 +78,7 @@ fn draw_recording<DB: DrawingBackend>(
     let values: Vec<f64> = points.iter().map(|q| q.1).collect();
     let thinned = decimate(&times, &values, 4000);
     let x1 = p.detection.duration_s.max(1e-3);
-    let y_max = values.iter().copied().fold(120.0_f64, f64::max) + 5.0;
-    let mut chart = ChartBuilder::on(&top)
+    let mut chart = ChartBuilder::on(top)
         .margin(10)
         .margin_right(24)
         .caption("Urms(1/2), % of the declared voltage", ("sans-serif", 15))
@@ -146,8 +166,18 @@ fn draw_recording<DB: DrawingBackend>(
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 16, y)], COLORS[0]));
     legend(&mut chart, SeriesLabelPosition::LowerLeft)?;
 
+    Ok(())
+}
+
+/// The lower panel: each event's duration and level against the ITI curve.
+fn draw_iti_panel<DB: DrawingBackend>(
+    bottom: &DrawingArea<DB, Shift>,
+    p: &RecordingPlot<'_>,
+    y_max: f64,
+) -> Result<(), PlotError> {
+    let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     // The events on the ITI (CBEMA) curve.
-    let mut chart = ChartBuilder::on(&bottom)
+    let mut chart = ChartBuilder::on(bottom)
         .margin(10)
         .margin_right(24)
         .caption("events against the ITI (CBEMA) curve", ("sans-serif", 15))
@@ -220,7 +250,6 @@ fn draw_recording<DB: DrawingBackend>(
             .legend(|(x, y)| TriangleMarker::new((x + 8, y), 6, RED.filled()));
     }
     legend(&mut chart, SeriesLabelPosition::UpperRight)?;
-    root.present().map_err(e)?;
     Ok(())
 }
 

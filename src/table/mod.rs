@@ -210,7 +210,7 @@ pub fn build(
     cases: Cases,
     progress: &dyn Progress,
 ) -> Result<(Table, Settled), TableError> {
-    use crate::tolerance::{self, MAX_CORNER_VALUES};
+    use crate::tolerance::MAX_CORNER_VALUES;
     let Source { path, circuit, .. } = source;
     // Mistakes in the request first, before any simulation.
     let n_values = circuit.tolerances.len();
@@ -232,6 +232,83 @@ pub fn build(
     }
     let settled = crate::scenario::settle(circuit, options)
         .map_err(|e| TableError::Settle(path.to_string(), e))?;
+    let (cases, description, screening) = tolerance_cases(source, options, plan, cases, progress)?;
+    let extra: Vec<(Circuit, Settled)> = cases[1..]
+        .par_iter()
+        .map(|case| settle_case(source, options, case))
+        .collect::<Result<_, TableError>>()?;
+    let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
+    case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
+    let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
+    progress.stage("", runs + usize::from(plan.thresholds) * case_refs.len());
+    // The static thresholds of every case (the nominal first); the table shows the
+    // nominal case's and the spread over all.
+    let mut notes: Vec<String> = Vec::new();
+    let mut all_thresholds: Vec<StaticThresholds> = Vec::new();
+    if plan.thresholds {
+        for (k, (s, c)) in case_refs.iter().enumerate() {
+            let found = crate::thresholds::find(s, c, &plan.threshold_options);
+            progress.done();
+            match found {
+                Ok(t) => all_thresholds.push(t),
+                Err(e) if k == 0 => {
+                    return Err(TableError::Thresholds {
+                        path: path.to_string(),
+                        source: e,
+                    })
+                }
+                Err(e) => notes.push(format!(
+                    "{}: the static thresholds could not be found ({e}); this case is left \
+                     out of the threshold spread",
+                    cases[k].label
+                )),
+            }
+        }
+    }
+    let rows = run_cases(&case_refs, plan, &|| progress.done())?;
+    let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
+    // The longest ride-through per level, on the nominal circuit; the plan's own dips at
+    // those levels narrow the first bracket (only without tolerance cases, whose rows mix
+    // circuits).
+    let known: Vec<crate::sweep::Cell> = if case_refs.len() == 1 {
+        known_cells(plan, &rows, settled.frequency_hz)
+    } else {
+        Vec::new()
+    };
+    let longest_ride_through = longest_ride_through(source, &settled, plan, &known, progress)?;
+    let table = Table {
+        circuit: circuit.title.clone(),
+        plan: plan.title.clone(),
+        nominal_rms_v: settled.rms,
+        frequency_hz: settled.frequency_hz,
+        phases_deg: plan.phases.clone(),
+        rows,
+        thresholds: all_thresholds.into_iter().next(),
+        runs,
+        power_up_limit_s: settled.settle_limit_s,
+        restore_limit_s: settled.restore_limit_s,
+        tolerance_cases: description,
+        threshold_spread,
+        screening,
+        longest_ride_through,
+        ride_through_longest_s: RIDE_THROUGH_LONGEST_S,
+        notes,
+    };
+    Ok((table, settled))
+}
+
+/// The tolerance cases asked for (nominal first) and their description; with screening,
+/// its result.
+fn tolerance_cases(
+    source: Source<'_>,
+    options: &EventOptions,
+    plan: &Plan,
+    cases: Cases,
+    progress: &dyn Progress,
+) -> Result<(Vec<crate::tolerance::Case>, String, Screening), TableError> {
+    use crate::tolerance::{self, MAX_CORNER_VALUES};
+    let circuit = source.circuit;
+    let n_values = circuit.tolerances.len();
     let mut screening = Screening::default();
     let (cases, description) = match cases {
         Cases::Nominal => (vec![tolerance::nominal()], String::new()),
@@ -282,61 +359,30 @@ pub fn build(
             (cases, description)
         }
     };
-    let extra: Vec<(Circuit, Settled)> = cases[1..]
-        .par_iter()
-        .map(|case| settle_case(source, options, case))
-        .collect::<Result<_, TableError>>()?;
-    let mut case_refs: Vec<(&Settled, &Circuit)> = vec![(&settled, circuit)];
-    case_refs.extend(extra.iter().map(|(c, s)| (s, c)));
-    let runs = plan.tests.len() * plan.phases.len() * case_refs.len();
-    progress.stage("", runs + usize::from(plan.thresholds) * case_refs.len());
-    // The static thresholds of every case (the nominal first); the table shows the
-    // nominal case's and the spread over all.
-    let mut notes: Vec<String> = Vec::new();
-    let mut all_thresholds: Vec<StaticThresholds> = Vec::new();
-    if plan.thresholds {
-        for (k, (s, c)) in case_refs.iter().enumerate() {
-            let found = crate::thresholds::find(s, c, &plan.threshold_options);
-            progress.done();
-            match found {
-                Ok(t) => all_thresholds.push(t),
-                Err(e) if k == 0 => {
-                    return Err(TableError::Thresholds {
-                        path: path.to_string(),
-                        source: e,
-                    })
-                }
-                Err(e) => notes.push(format!(
-                    "{}: the static thresholds could not be found ({e}); this case is left \
-                     out of the threshold spread",
-                    cases[k].label
-                )),
-            }
-        }
-    }
-    let rows = run_cases(&case_refs, plan, &|| progress.done())?;
-    let threshold_spread = (all_thresholds.len() > 1).then(|| ThresholdSpread::of(&all_thresholds));
-    // The longest ride-through per level, on the nominal circuit; the plan's own dips at
-    // those levels narrow the first bracket (only without tolerance cases, whose rows mix
-    // circuits).
-    let known: Vec<crate::sweep::Cell> = if case_refs.len() == 1 {
-        known_cells(plan, &rows, settled.frequency_hz)
-    } else {
-        Vec::new()
-    };
+    Ok((cases, description, screening))
+}
+
+/// The longest ride-through at each of the plan's levels, on the nominal circuit.
+fn longest_ride_through(
+    source: Source<'_>,
+    settled: &Settled,
+    plan: &Plan,
+    known: &[crate::sweep::Cell],
+    progress: &dyn Progress,
+) -> Result<Vec<crate::sweep::DurationBoundaryPoint>, TableError> {
+    let Source { path, circuit, .. } = source;
     progress.stage("longest ride-through", plan.ride_through_levels.len());
     let range = (0.5 / settled.frequency_hz, RIDE_THROUGH_LONGEST_S);
-    let longest_ride_through = plan
-        .ride_through_levels
+    plan.ride_through_levels
         .iter()
         .map(|&level| {
             let b = crate::sweep::refine_duration_boundary(
-                &settled,
+                settled,
                 circuit,
                 level,
                 &plan.phases,
                 range,
-                &known,
+                known,
                 DEFAULT_EDGE_S,
             );
             progress.done();
@@ -345,26 +391,7 @@ pub fn build(
                 source: e,
             })
         })
-        .collect::<Result<Vec<_>, TableError>>()?;
-    let table = Table {
-        circuit: circuit.title.clone(),
-        plan: plan.title.clone(),
-        nominal_rms_v: settled.rms,
-        frequency_hz: settled.frequency_hz,
-        phases_deg: plan.phases.clone(),
-        rows,
-        thresholds: all_thresholds.into_iter().next(),
-        runs,
-        power_up_limit_s: settled.settle_limit_s,
-        restore_limit_s: settled.restore_limit_s,
-        tolerance_cases: description,
-        threshold_spread,
-        screening,
-        longest_ride_through,
-        ride_through_longest_s: RIDE_THROUGH_LONGEST_S,
-        notes,
-    };
-    Ok((table, settled))
+        .collect::<Result<Vec<_>, TableError>>()
 }
 
 /// The plan's one-step dips as map cells (worst case over the phases), for the longest
