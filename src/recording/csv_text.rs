@@ -2,6 +2,65 @@
 
 use super::*;
 
+/// The first line that is neither blank nor a comment, with its 1-based number; `None` for a
+/// file with no such line.
+fn read_header(
+    lines: &mut impl Iterator<Item = (usize, std::io::Result<String>)>,
+) -> std::io::Result<Option<(usize, String)>> {
+    for (k, line) in lines {
+        let line = line?;
+        let trimmed = line.trim();
+        if !trimmed.is_empty() && !trimmed.starts_with('#') {
+            return Ok(Some((k + 1, line)));
+        }
+    }
+    Ok(None)
+}
+
+/// A field's text without surrounding spaces and quotes.
+fn clean(s: &str) -> String {
+    s.trim().trim_matches('"').trim().to_string()
+}
+
+/// How a data row is split: the separator and the two columns read.
+#[derive(Clone, Copy)]
+struct Row {
+    separator: char,
+    time: usize,
+    voltage: usize,
+}
+
+impl Row {
+    /// Line `k` (1-based) as (time, voltage); `None` for a blank or comment line. The error
+    /// carries no path (the caller adds it).
+    fn parse(self, k: usize, line: &str) -> Result<Option<(f64, f64)>, RecordingError> {
+        let trimmed = line.trim();
+        if trimmed.is_empty() || trimmed.starts_with('#') {
+            return Ok(None);
+        }
+        let fields: Vec<String> = trimmed.split(self.separator).map(clean).collect();
+        let get = |i: usize, what: &str| -> Result<f64, RecordingError> {
+            let text = fields.get(i).ok_or_else(|| RecordingError::Line {
+                path: String::new(),
+                line: k,
+                message: format!("missing the {what} field"),
+            })?;
+            match text.parse::<f64>() {
+                Ok(v) if v.is_finite() => Ok(v),
+                _ => Err(RecordingError::Line {
+                    path: String::new(),
+                    line: k,
+                    message: format!("{what} `{text}` is not a finite number"),
+                }),
+            }
+        };
+        Ok(Some((
+            get(self.time, "time")?,
+            get(self.voltage, "voltage")?,
+        )))
+    }
+}
+
 /// A CSV recording: a header line naming the columns, then one sample per line. Blank lines
 /// and lines starting with `#` are skipped; fields may be quoted and padded; the separator
 /// is a comma or a semicolon. The sample rate comes from the first two time stamps; every
@@ -19,76 +78,36 @@ pub(crate) fn open_csv(path: &Path, columns: &CsvColumns) -> Result<Samples, Rec
         line,
         message,
     };
-    // Header.
-    let (header_line, header) = loop {
-        match lines.next() {
-            None => {
-                return Err(RecordingError::Format {
-                    path: name.clone(),
-                    message: "the file is empty".into(),
-                })
-            }
-            Some((k, line)) => {
-                let line = line.map_err(io)?;
-                let trimmed = line.trim();
-                if trimmed.is_empty() || trimmed.starts_with('#') {
-                    continue;
-                }
-                break (k + 1, line);
-            }
-        }
-    };
+    let (header_line, header) =
+        read_header(&mut lines)
+            .map_err(io)?
+            .ok_or_else(|| RecordingError::Format {
+                path: name.clone(),
+                message: "the file is empty".into(),
+            })?;
     let separator = if header.contains(';') && !header.contains(',') {
         ';'
     } else {
         ','
     };
-    let clean = |s: &str| s.trim().trim_matches('"').trim().to_string();
     let names: Vec<String> = header.split(separator).map(clean).collect();
-    let find = |wanted: &str| names.iter().position(|n| n.eq_ignore_ascii_case(wanted));
-    let time_col = find(&columns.time).ok_or_else(|| {
-        line_error(
-            header_line,
-            format!(
-                "no column `{}` (columns: {})",
-                columns.time,
-                names.join(", ")
-            ),
-        )
-    })?;
-    let volt_col = find(&columns.voltage).ok_or_else(|| {
-        line_error(
-            header_line,
-            format!(
-                "no column `{}` (columns: {})",
-                columns.voltage,
-                names.join(", ")
-            ),
-        )
-    })?;
-    let parse = move |k: usize, line: &str| -> Result<Option<(f64, f64)>, RecordingError> {
-        let trimmed = line.trim();
-        if trimmed.is_empty() || trimmed.starts_with('#') {
-            return Ok(None);
-        }
-        let fields: Vec<String> = trimmed.split(separator).map(clean).collect();
-        let get = |i: usize, what: &str| -> Result<f64, RecordingError> {
-            let text = fields.get(i).ok_or_else(|| RecordingError::Line {
-                path: String::new(),
-                line: k,
-                message: format!("missing the {what} field"),
-            })?;
-            match text.parse::<f64>() {
-                Ok(v) if v.is_finite() => Ok(v),
-                _ => Err(RecordingError::Line {
-                    path: String::new(),
-                    line: k,
-                    message: format!("{what} `{text}` is not a finite number"),
-                }),
-            }
-        };
-        Ok(Some((get(time_col, "time")?, get(volt_col, "voltage")?)))
+    let column = |wanted: &str| {
+        names
+            .iter()
+            .position(|n| n.eq_ignore_ascii_case(wanted))
+            .ok_or_else(|| {
+                line_error(
+                    header_line,
+                    format!("no column `{wanted}` (columns: {})", names.join(", ")),
+                )
+            })
     };
+    let row = Row {
+        separator,
+        time: column(&columns.time)?,
+        voltage: column(&columns.voltage)?,
+    };
+    let parse = move |k: usize, line: &str| row.parse(k, line);
     // Read the first two samples to learn the rate.
     let mut first = Vec::new();
     let mut rest_lines = lines;
