@@ -106,7 +106,28 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
             });
         }
     }
-    // Comparator inputs and outputs.
+    panels.extend(comparator_panels(circuit, &series));
+    panels.extend(relay_panels(run, circuit, &time_ms, &series));
+    let marks = marks(run);
+    Figure {
+        title: format!("{}: {} ({})", name, run.event, circuit.title),
+        panels,
+        onset_ms: 0.0,
+        end_ms: (run.event_end_s - run.onset_s) * 1e3,
+        x_range: (
+            time_ms.first().copied().unwrap_or(0.0),
+            time_ms.last().copied().unwrap_or(1.0),
+        ),
+        marks,
+    }
+}
+
+/// A probe's series against milliseconds from the onset, decimated; `None` if not recorded.
+type Series<'a> = dyn Fn(&Probe) -> Option<Vec<(f64, f64)>> + 'a;
+
+/// The comparators' inputs in one panel and their outputs in another.
+fn comparator_panels(circuit: &Circuit, series: &Series<'_>) -> Vec<Panel> {
+    let mut panels = Vec::new();
     let mut inputs = Vec::new();
     let mut outputs = Vec::new();
     for part in circuit
@@ -151,8 +172,19 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
             levels: Vec::new(),
         });
     }
-    // Relays: coil current with pick-up and drop-out levels; load path.
-    let mut marks = Vec::new();
+    panels
+}
+
+/// Per relay: its coil current with the pick-up and drop-out levels, and its load path (the
+/// contact's state from the located events, and the load's voltage).
+fn relay_panels(
+    run: &EventRun,
+    circuit: &Circuit,
+    time_ms: &[f64],
+    series: &Series<'_>,
+) -> Vec<Panel> {
+    let t = &run.trace;
+    let mut panels = Vec::new();
     for (index, part) in circuit.parts.iter().enumerate() {
         let PartSpec::Relay(r) = &part.spec else {
             continue;
@@ -212,6 +244,12 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
             levels: Vec::new(),
         });
     }
+    panels
+}
+
+/// The marks: the trip and the reconnections.
+fn marks(run: &EventRun) -> Vec<(f64, String)> {
+    let mut marks = Vec::new();
     let m = &run.measurements;
     if let Some(trip) = m.trip_latency_ms {
         marks.push((trip, format!("trip {trip:.1} ms")));
@@ -231,17 +269,7 @@ fn build(run: &EventRun, circuit: &Circuit, name: &str) -> Figure {
             ));
         }
     }
-    Figure {
-        title: format!("{}: {} ({})", name, run.event, circuit.title),
-        panels,
-        onset_ms: 0.0,
-        end_ms: (run.event_end_s - run.onset_s) * 1e3,
-        x_range: (
-            time_ms.first().copied().unwrap_or(0.0),
-            time_ms.last().copied().unwrap_or(1.0),
-        ),
-        marks,
-    }
+    marks
 }
 
 fn draw<DB: DrawingBackend>(

@@ -386,85 +386,10 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
         );
     }
     let _ = writeln!(out, "</table>");
-    if let Some(t) = &table.thresholds {
-        let _ = writeln!(
-            out,
-            "<h2>Static thresholds</h2>\n<p>Each level held {} s, found by bisection to {} V.</p>\n\
-             <table>\n<tr><th>side</th><th>trip</th><th>reset</th><th>hysteresis</th>\
-             <th>slow ramp</th></tr>",
-            t.hold_s, t.resolution_v
-        );
-        for [side, trip, reset, hysteresis, ramp] in threshold_rows(t) {
-            let _ = writeln!(
-                out,
-                "<tr><td>{side}</td><td class=\"num\">{trip}</td><td class=\"num\">{reset}</td>\
-                 <td class=\"num\">{hysteresis}</td><td>{}</td></tr>",
-                escape(&ramp)
-            );
-        }
-        let _ = writeln!(out, "</table>");
-        for s in [&t.under, &t.over] {
-            if let Some(note) = &s.note {
-                let _ = writeln!(out, "<p>{}</p>", escape(note));
-            }
-        }
-    }
-    if !table.longest_ride_through.is_empty() {
-        let _ = writeln!(
-            out,
-            "<h2>Longest ride-through</h2>\n<p>{}</p>\n<table>\n<tr><th>residual</th>\
-             <th>longest ridden through</th><th>shortest trip</th></tr>",
-            escape(&ride_through_text(table))
-        );
-        for [level, ride, trip] in ride_through_rows(table) {
-            let _ = writeln!(
-                out,
-                "<tr><td class=\"num\">{level}</td><td class=\"num\">{}</td>\
-                 <td class=\"num\">{}</td></tr>",
-                escape(&ride),
-                escape(&trip)
-            );
-        }
-        let _ = writeln!(out, "</table>");
-    }
-    if let Some(spread) = &table.threshold_spread {
-        let _ = writeln!(
-            out,
-            "<p>Over the {} tolerance cases (the table above is the nominal case):</p>\n\
-             <table>\n<tr><th>threshold</th><th>min</th><th>typical</th><th>max</th></tr>",
-            spread.cases
-        );
-        for [name, lo, typ, hi] in spread_rows(spread) {
-            let _ = writeln!(
-                out,
-                "<tr><td>{name}</td><td class=\"num\">{lo}</td><td class=\"num\">{typ}</td>\
-                 <td class=\"num\">{hi}</td></tr>"
-            );
-        }
-        let _ = writeln!(out, "</table>");
-    }
-    if !table.screening.effects.is_empty() {
-        let _ = writeln!(
-            out,
-            "<h2>Tolerance screening</h2>\n<p>{}</p>\n<table>\n<tr><th>value</th>\
-             <th>share of a spread</th><th>change</th><th>in</th><th>corners</th></tr>",
-            escape(SCREENING_TEXT)
-        );
-        for [field, percent, change, quantity, kept] in screening_rows(&table.screening.effects) {
-            let _ = writeln!(
-                out,
-                "<tr><td><code>{}</code></td><td class=\"num\">{percent}</td>\
-                 <td class=\"num\">{}</td><td>{}</td><td>{kept}</td></tr>",
-                escape(&field),
-                escape(&change),
-                escape(&quantity)
-            );
-        }
-        let _ = writeln!(out, "</table>");
-        if let Some(text) = allowance_text(&table.screening) {
-            let _ = writeln!(out, "<p>{}</p>", escape(&text));
-        }
-    }
+    html_thresholds(&mut out, table);
+    html_ride_through(&mut out, table);
+    html_spread(&mut out, table);
+    html_screening(&mut out, table);
     for note in &table.notes {
         let _ = writeln!(out, "<p><strong>Note:</strong> {}</p>", escape(note));
     }
@@ -488,6 +413,101 @@ pub fn html(table: &Table, figures: &[(&str, &str)]) -> String {
         env!("CARGO_PKG_VERSION")
     );
     out
+}
+
+/// The HTML report's static thresholds, if found.
+fn html_thresholds(out: &mut String, table: &Table) {
+    if let Some(t) = &table.thresholds {
+        let _ = writeln!(
+            out,
+            "<h2>Static thresholds</h2>\n<p>Each level held {} s, found by bisection to {} V.</p>\n\
+             <table>\n<tr><th>side</th><th>trip</th><th>reset</th><th>hysteresis</th>\
+             <th>slow ramp</th></tr>",
+            t.hold_s, t.resolution_v
+        );
+        for [side, trip, reset, hysteresis, ramp] in threshold_rows(t) {
+            let _ = writeln!(
+                out,
+                "<tr><td>{side}</td><td class=\"num\">{trip}</td><td class=\"num\">{reset}</td>\
+                 <td class=\"num\">{hysteresis}</td><td>{}</td></tr>",
+                escape(&ramp)
+            );
+        }
+        let _ = writeln!(out, "</table>");
+        for s in [&t.under, &t.over] {
+            if let Some(note) = &s.note {
+                let _ = writeln!(out, "<p>{}</p>", escape(note));
+            }
+        }
+    }
+}
+
+/// The HTML report's longest ride-through per level, if searched.
+fn html_ride_through(out: &mut String, table: &Table) {
+    if !table.longest_ride_through.is_empty() {
+        let _ = writeln!(
+            out,
+            "<h2>Longest ride-through</h2>\n<p>{}</p>\n<table>\n<tr><th>residual</th>\
+             <th>longest ridden through</th><th>shortest trip</th></tr>",
+            escape(&ride_through_text(table))
+        );
+        for [level, ride, trip] in ride_through_rows(table) {
+            let _ = writeln!(
+                out,
+                "<tr><td class=\"num\">{level}</td><td class=\"num\">{}</td>\
+                 <td class=\"num\">{}</td></tr>",
+                escape(&ride),
+                escape(&trip)
+            );
+        }
+        let _ = writeln!(out, "</table>");
+    }
+}
+
+/// The HTML report's threshold spread over the tolerance cases, if any.
+fn html_spread(out: &mut String, table: &Table) {
+    if let Some(spread) = &table.threshold_spread {
+        let _ = writeln!(
+            out,
+            "<p>Over the {} tolerance cases (the table above is the nominal case):</p>\n\
+             <table>\n<tr><th>threshold</th><th>min</th><th>typical</th><th>max</th></tr>",
+            spread.cases
+        );
+        for [name, lo, typ, hi] in spread_rows(spread) {
+            let _ = writeln!(
+                out,
+                "<tr><td>{name}</td><td class=\"num\">{lo}</td><td class=\"num\">{typ}</td>\
+                 <td class=\"num\">{hi}</td></tr>"
+            );
+        }
+        let _ = writeln!(out, "</table>");
+    }
+}
+
+/// The HTML report's tolerance screening, if done.
+fn html_screening(out: &mut String, table: &Table) {
+    if !table.screening.effects.is_empty() {
+        let _ = writeln!(
+            out,
+            "<h2>Tolerance screening</h2>\n<p>{}</p>\n<table>\n<tr><th>value</th>\
+             <th>share of a spread</th><th>change</th><th>in</th><th>corners</th></tr>",
+            escape(SCREENING_TEXT)
+        );
+        for [field, percent, change, quantity, kept] in screening_rows(&table.screening.effects) {
+            let _ = writeln!(
+                out,
+                "<tr><td><code>{}</code></td><td class=\"num\">{percent}</td>\
+                 <td class=\"num\">{}</td><td>{}</td><td>{kept}</td></tr>",
+                escape(&field),
+                escape(&change),
+                escape(&quantity)
+            );
+        }
+        let _ = writeln!(out, "</table>");
+        if let Some(text) = allowance_text(&table.screening) {
+            let _ = writeln!(out, "<p>{}</p>", escape(&text));
+        }
+    }
 }
 
 /// The trip map of an HTML report: a coarse grid run from the settled protector (the sweep
