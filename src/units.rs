@@ -212,6 +212,25 @@ fn number_prefix_len(s: &str) -> usize {
     i
 }
 
+/// Reads a phase angle in degrees, the one grammar of every option, event spec and file:
+/// a finite number, optionally followed by `deg` (`90`, `90deg`, `-45.5 deg`). `None` for
+/// anything else.
+///
+/// ```
+/// use sagtrip::units::parse_phase_deg;
+/// assert_eq!(parse_phase_deg("90deg"), Some(90.0));
+/// assert_eq!(parse_phase_deg(" 270 "), Some(270.0));
+/// assert_eq!(parse_phase_deg("nan"), None);
+/// ```
+pub fn parse_phase_deg(text: &str) -> Option<f64> {
+    text.trim()
+        .trim_end_matches("deg")
+        .trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|v| v.is_finite())
+}
+
 /// A value printed with an SI prefix and unit, e.g. `4.7 uF`, `68 kohm`.
 pub struct Engineering(pub f64, pub Quantity);
 

@@ -1224,6 +1224,21 @@ fn nonsense_thresholds_scales_harmonics_and_phases_are_refused() {
             "orders from 2 to 100",
         ),
         (vec!["sweep", "--phases", "nan"], "--phases nan"),
+        (vec!["table", "--phases", "90,nan"], "--phases 90,nan"),
+        (
+            vec!["run", "--event", "dip:40%:10cyc@nan"],
+            "not a phase angle",
+        ),
+        (
+            vec!["run", "--event", "class3-dip-40@nandeg"],
+            "not a phase angle",
+        ),
+        // One phase grammar for every option: `90deg` is read by sweep as by table, so
+        // the mistake reported is the next one (the durations, read after power-up).
+        (
+            vec!["sweep", "--phases", "0,90deg", "--durations", "1s:0.5s"],
+            "--durations",
+        ),
     ] {
         let out = sagtrip(&args);
         let err = String::from_utf8_lossy(&out.stderr);

@@ -323,6 +323,14 @@ pub(crate) fn significant(v: f64) -> f64 {
     format!("{v:.8e}").parse().unwrap_or(v)
 }
 
+/// A comma-separated list of phase angles in degrees (`0,90deg,180`), for option `--NAME`.
+pub(crate) fn phase_list(text: &str, name: &str) -> Result<Vec<f64>, Failure> {
+    text.split(',')
+        .map(sagtrip::units::parse_phase_deg)
+        .collect::<Option<Vec<f64>>>()
+        .ok_or_else(|| format!("--{name} {text}: expected degrees, e.g. 0,90deg,180,270").into())
+}
+
 /// A JSON value as indented text.
 pub(crate) fn pretty_json(value: &serde_json::Value) -> String {
     serde_json::to_string_pretty(value).unwrap_or_default()

@@ -142,7 +142,7 @@ pub(crate) fn shard_option(text: &str) -> Result<(usize, usize), String> {
 
 pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     use sagtrip::sweep::study::{run_study, StudySettings};
-    use sagtrip::sweep::{log_durations, Grid};
+    use sagtrip::sweep::Grid;
     refuse_overwriting_inputs(
         &[
             ("--out", args.out.as_deref()),
@@ -152,26 +152,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
     )?;
     let (circuit, name, text) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
-    let mut levels = level_range(&args.levels, "levels")?;
-    if levels.iter().any(|&l| l >= 100.0) {
-        return Err("--levels: dip levels are below 100% (use --swells above it)".into());
-    }
-    let swells = args
-        .swells
-        .as_deref()
-        .map(|s| level_range(s, "swells"))
-        .transpose()?
-        .unwrap_or_default();
-    if swells.iter().any(|&l| l <= 100.0) {
-        return Err("--swells: swell levels are above 100%".into());
-    }
-    levels.extend(&swells);
-    let phases: Vec<f64> = args
-        .phases
-        .split(',')
-        .map(|p| p.trim().parse::<f64>().ok().filter(|x| x.is_finite()))
-        .collect::<Option<_>>()
-        .ok_or_else(|| format!("--phases {}: expected degrees, e.g. 0,90", args.phases))?;
+    let (levels, phases) = axes(args)?;
     let (k, n) = args
         .shard
         .as_deref()
@@ -186,34 +167,9 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         sagtrip::scenario::settle(&circuit, &options).map_err(|e| scenario_failure(&name, e))?;
     let settle_wall = started.elapsed().as_secs_f64();
     let frequency = settled.frequency_hz;
-    let (first, last) = args.durations.split_once(':').ok_or_else(|| {
-        format!(
-            "--durations {}: expected SHORTEST:LONGEST, e.g. 0.5cyc:10s",
-            args.durations
-        )
-    })?;
-    let first = duration_option(first, "durations", frequency)?;
-    let last = duration_option(last, "durations", frequency)?;
-    if args.duration_count > MAX_GRID_AXIS {
-        return Err(format!(
-            "--duration-count {}: at most {MAX_GRID_AXIS}",
-            args.duration_count
-        )
-        .into());
-    }
-    if !(0.01..=50.0).contains(&args.resolution) {
-        return Err(format!(
-            "--resolution {}: allowed from 0.01 to 50 (% of nominal)",
-            args.resolution
-        )
-        .into());
-    }
-    if first <= 0.0 || last < first || args.duration_count == 0 {
-        return Err("--durations: need 0 < SHORTEST <= LONGEST and a positive count".into());
-    }
     let grid = Grid {
         levels_pct: levels,
-        durations_s: log_durations(first, last, args.duration_count),
+        durations_s: durations(args, frequency)?,
         phases_deg: phases,
     };
     let study = StudySettings {
@@ -278,6 +234,61 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         args.plot.as_deref(),
         args.json,
     )
+}
+
+/// The grid's levels (dips, then swells) and start phases, and the checks of the counts
+/// and the resolution: mistakes found before any simulation.
+fn axes(args: &SweepArgs) -> Result<(Vec<f64>, Vec<f64>), Failure> {
+    let mut levels = level_range(&args.levels, "levels")?;
+    if levels.iter().any(|&l| l >= 100.0) {
+        return Err("--levels: dip levels are below 100% (use --swells above it)".into());
+    }
+    let swells = args
+        .swells
+        .as_deref()
+        .map(|s| level_range(s, "swells"))
+        .transpose()?
+        .unwrap_or_default();
+    if swells.iter().any(|&l| l <= 100.0) {
+        return Err("--swells: swell levels are above 100%".into());
+    }
+    levels.extend(&swells);
+    let phases = phase_list(&args.phases, "phases")?;
+    if args.duration_count > MAX_GRID_AXIS {
+        return Err(format!(
+            "--duration-count {}: at most {MAX_GRID_AXIS}",
+            args.duration_count
+        )
+        .into());
+    }
+    if !(0.01..=50.0).contains(&args.resolution) {
+        return Err(format!(
+            "--resolution {}: allowed from 0.01 to 50 (% of nominal)",
+            args.resolution
+        )
+        .into());
+    }
+    Ok((levels, phases))
+}
+
+/// The grid's durations, log-spaced; cycles count at the supply's `frequency`.
+fn durations(args: &SweepArgs, frequency: f64) -> Result<Vec<f64>, Failure> {
+    let (first, last) = args.durations.split_once(':').ok_or_else(|| {
+        format!(
+            "--durations {}: expected SHORTEST:LONGEST, e.g. 0.5cyc:10s",
+            args.durations
+        )
+    })?;
+    let first = duration_option(first, "durations", frequency)?;
+    let last = duration_option(last, "durations", frequency)?;
+    if first <= 0.0 || last < first || args.duration_count == 0 {
+        return Err("--durations: need 0 < SHORTEST <= LONGEST and a positive count".into());
+    }
+    Ok(sagtrip::sweep::log_durations(
+        first,
+        last,
+        args.duration_count,
+    ))
 }
 
 pub(crate) use sagtrip::sweep::report::Report as SweepReport;

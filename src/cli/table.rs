@@ -80,7 +80,7 @@ impl sagtrip::table::Progress for Bar {
 }
 
 pub(crate) fn table_command(args: &TableArgs) -> Outcome {
-    use sagtrip::table::{csv, default_plan, markdown, parse_plan, Cases};
+    use sagtrip::table::{csv, markdown};
     let mut out = String::new();
     refuse_overwriting_inputs(
         &[
@@ -93,40 +93,7 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
     let (circuit, name, text_of_circuit) = load_circuit_and_text(args.circuit.as_deref())?;
     let options = args.limits.options(args.nominal.as_deref())?;
     // The plan first: a mistake in it is reported before any simulation.
-    let frequency_hint = options
-        .nominal
-        .map(|(_, f)| f)
-        .or_else(|| {
-            sagtrip::scenario::find_mains(&circuit, None)
-                .ok()
-                .map(|m| m.frequency_hz)
-        })
-        .unwrap_or(50.0);
-    let mut plan = match &args.plan {
-        Some(path) => {
-            let text = std::fs::read_to_string(path)
-                .map_err(|e| format!("cannot read plan {}: {e}", path.display()))?;
-            parse_plan(&text, &path.display().to_string(), frequency_hint)
-                .map_err(|e| e.to_string())?
-        }
-        None => default_plan(args.class, frequency_hint).map_err(|e| format!("--class: {e}"))?,
-    };
-    if let Some(text) = &args.phases {
-        plan.phases = text
-            .split(',')
-            .map(|p| {
-                p.trim()
-                    .trim_end_matches("deg")
-                    .parse::<f64>()
-                    .ok()
-                    .filter(|x| x.is_finite())
-                    .ok_or_else(|| format!("--phases {text}: expected degrees, e.g. 0,90,180,270"))
-            })
-            .collect::<Result<_, _>>()?;
-    }
-    if args.no_thresholds {
-        plan.thresholds = false;
-    }
+    let plan = plan_of(args, &options, &circuit)?;
     for path in [&args.csv, &args.markdown, &args.html]
         .into_iter()
         .flatten()
@@ -136,16 +103,7 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
         }
     }
     let started = Instant::now();
-    let cases = match (args.corners, args.monte_carlo, args.screen) {
-        (true, Some(_), _) => return Err("give --corners or --monte-carlo, not both".into()),
-        (false, _, Some(_)) => return Err("--screen goes with --corners".into()),
-        (true, None, screen) => Cases::Corners { screen },
-        (false, Some(count), None) => Cases::MonteCarlo {
-            count,
-            seed: args.seed,
-        },
-        (false, None, None) => Cases::Nominal,
-    };
+    let cases = cases_of(args)?;
     let bar = if args.quiet || args.json {
         indicatif::ProgressBar::hidden()
     } else {
@@ -163,26 +121,8 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
         path: &name,
         circuit: &circuit,
     };
-    use sagtrip::table::TableError;
     let (table, settled) = sagtrip::table::build(source, &options, &plan, cases, &progress)
-        .map_err(|e| match e {
-            TableError::NoTolerances { kind, .. } => Failure::Input(format!(
-                "{}: {e}",
-                match kind {
-                    sagtrip::table::CaseKind::Corners => "--corners",
-                    sagtrip::table::CaseKind::MonteCarlo => "--monte-carlo",
-                }
-            )),
-            TableError::ScreenOutOfRange { keep } => {
-                Failure::Input(format!("--screen {keep}: {e}"))
-            }
-            TableError::TooManyCorners(_) => Failure::Input(format!(
-                "--corners: {e} (--screen K keeps the K that matter most)"
-            )),
-            TableError::Settle(path, e) => scenario_failure(&path, e),
-            TableError::CaseFile { .. } => Failure::Input(format!("{name}: {e}")),
-            e => Failure::Run(e.to_string()),
-        })?;
+        .map_err(|e| table_failure(&name, e))?;
     let bar = &progress.0;
     let text = markdown(&table);
     if let Some(path) = &args.csv {
@@ -213,4 +153,74 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
     out.push_str(&text);
     say!(out, "\n({name}; {wall:.1} s wall)");
     Ok(out)
+}
+
+/// The plan: the file's or the class's default, with the options' phases and thresholds.
+fn plan_of(
+    args: &TableArgs,
+    options: &EventOptions,
+    circuit: &Circuit,
+) -> Result<sagtrip::table::Plan, Failure> {
+    use sagtrip::table::{default_plan, parse_plan};
+    let frequency_hint = options
+        .nominal
+        .map(|(_, f)| f)
+        .or_else(|| {
+            sagtrip::scenario::find_mains(&circuit, None)
+                .ok()
+                .map(|m| m.frequency_hz)
+        })
+        .unwrap_or(50.0);
+    let mut plan = match &args.plan {
+        Some(path) => {
+            let text = std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read plan {}: {e}", path.display()))?;
+            parse_plan(&text, &path.display().to_string(), frequency_hint)
+                .map_err(|e| e.to_string())?
+        }
+        None => default_plan(args.class, frequency_hint).map_err(|e| format!("--class: {e}"))?,
+    };
+    if let Some(text) = &args.phases {
+        plan.phases = phase_list(text, "phases")?;
+    }
+    if args.no_thresholds {
+        plan.thresholds = false;
+    }
+    Ok(plan)
+}
+
+/// The tolerance cases the options ask for.
+fn cases_of(args: &TableArgs) -> Result<sagtrip::table::Cases, Failure> {
+    use sagtrip::table::Cases;
+    Ok(match (args.corners, args.monte_carlo, args.screen) {
+        (true, Some(_), _) => return Err("give --corners or --monte-carlo, not both".into()),
+        (false, _, Some(_)) => return Err("--screen goes with --corners".into()),
+        (true, None, screen) => Cases::Corners { screen },
+        (false, Some(count), None) => Cases::MonteCarlo {
+            count,
+            seed: args.seed,
+        },
+        (false, None, None) => Cases::Nominal,
+    })
+}
+
+/// A table's failure with the option or file it concerns, and its exit code.
+fn table_failure(name: &str, e: sagtrip::table::TableError) -> Failure {
+    use sagtrip::table::TableError;
+    match e {
+        TableError::NoTolerances { kind, .. } => Failure::Input(format!(
+            "{}: {e}",
+            match kind {
+                sagtrip::table::CaseKind::Corners => "--corners",
+                sagtrip::table::CaseKind::MonteCarlo => "--monte-carlo",
+            }
+        )),
+        TableError::ScreenOutOfRange { keep } => Failure::Input(format!("--screen {keep}: {e}")),
+        TableError::TooManyCorners(_) => Failure::Input(format!(
+            "--corners: {e} (--screen K keeps the K that matter most)"
+        )),
+        TableError::Settle(path, e) => scenario_failure(&path, e),
+        TableError::CaseFile { .. } => Failure::Input(format!("{name}: {e}")),
+        e => Failure::Run(e.to_string()),
+    }
 }

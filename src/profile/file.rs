@@ -48,18 +48,13 @@ pub fn parse_event_file(text: &str, path: &str) -> Result<Profile, EventFileErro
         match key.get_ref().as_ref() {
             "phase" => {
                 let text = scalar(value.get_ref()).unwrap_or_default();
-                phase_deg = text
-                    .trim()
-                    .trim_end_matches("deg")
-                    .trim()
-                    .parse()
-                    .map_err(|_| {
-                        file.at(
-                            span,
-                            "phase",
-                            format!("`{text}` is not a phase angle in degrees"),
-                        )
-                    })?;
+                phase_deg = crate::units::parse_phase_deg(&text).ok_or_else(|| {
+                    file.at(
+                        span,
+                        "phase",
+                        format!("`{text}` is not a phase angle in degrees"),
+                    )
+                })?;
             }
             "edge" => {
                 let text = scalar(value.get_ref()).unwrap_or_default();

@@ -134,18 +134,14 @@ pub fn resolve(spec: &str, frequency_hz: f64, edge_s: f64) -> Result<Profile, Sp
         };
         profile.edge_s = edge_s;
         if let Some(p) = phase {
-            profile.phase_deg = p
-                .trim()
-                .trim_end_matches("deg")
-                .parse::<f64>()
-                .map_err(|_| {
-                    spec_error(
-                        spec,
-                        name.len() + 1,
-                        p.len(),
-                        format!("`{p}` is not a phase angle in degrees"),
-                    )
-                })?;
+            profile.phase_deg = crate::units::parse_phase_deg(p).ok_or_else(|| {
+                spec_error(
+                    spec,
+                    name.len() + 1,
+                    p.len(),
+                    format!("`{p}` is not a phase angle in degrees"),
+                )
+            })?;
         }
         return Ok(profile);
     }

@@ -150,20 +150,14 @@ pub fn parse_spec(spec: &str, edge_s: f64) -> Result<Profile, SpecError> {
                     "a start phase (@degrees) belongs to the first event only",
                 ));
             }
-            phase_deg = text
-                .trim()
-                .trim_end_matches("deg")
-                .parse::<f64>()
-                .ok()
-                .filter(|v| v.is_finite())
-                .ok_or_else(|| {
-                    spec_error(
-                        spec,
-                        at,
-                        text.len(),
-                        format!("`{text}` is not a phase angle in degrees"),
-                    )
-                })?;
+            phase_deg = crate::units::parse_phase_deg(text).ok_or_else(|| {
+                spec_error(
+                    spec,
+                    at,
+                    text.len(),
+                    format!("`{text}` is not a phase angle in degrees"),
+                )
+            })?;
         }
         steps.push(parse_step(spec, item_at, body)?);
     }
