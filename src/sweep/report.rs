@@ -163,6 +163,29 @@ impl<'a> Report<'a> {
             out,
             "\nworst case over phases: . rides through, T trips, C chatters, ! failed, blank not run\n"
         );
+        self.map_lines(&mut out, &map);
+        for (side, list) in [("dip", &dips), ("swell", &swells)] {
+            self.boundary_lines(&mut out, side, list);
+        }
+        if !longest.is_empty() {
+            longest_lines(&mut out, &longest);
+        }
+        if let Some(dir) = out_dir {
+            say!(
+                out,
+                "\nwritten: {}/points.csv, boundary.csv, duration-boundary.csv, sweep.json",
+                dir.display()
+            );
+        }
+        if let Some(path) = plot {
+            say!(out, "map: {}", path.display());
+        }
+        out
+    }
+
+    /// The map as characters, worst case over phases, highest level first.
+    fn map_lines(&self, out: &mut String, map: &[Cell]) {
+        let r = self;
         let mut header = format!("{:>8} ", "level");
         for d in &r.grid.durations_s {
             header += &format!("{:>8}", short_duration(*d));
@@ -190,66 +213,59 @@ impl<'a> Report<'a> {
             out,
             "(T followed by the longest trip latency over the phases, ms)"
         );
-        for (side, list) in [("dip", &dips), ("swell", &swells)] {
-            if list.is_empty() {
-                continue;
-            }
-            say!(
-                out,
-                "\n{side} boundary (refined to +/- {} % of nominal):",
-                r.resolution_pct
-            );
-            for b in list {
-                match b.level_pct {
-                    Some(l) => {
-                        say!(out, "  {:>10}  {:6.2} %", short_duration(b.duration_s), l);
-                    }
-                    None => {
-                        say!(out, "  {:>10}  none in range", short_duration(b.duration_s));
-                    }
+    }
+
+    /// One side's level boundary by duration.
+    fn boundary_lines(&self, out: &mut String, side: &str, list: &[BoundaryPoint]) {
+        if list.is_empty() {
+            return;
+        }
+        say!(
+            out,
+            "\n{side} boundary (refined to +/- {} % of nominal):",
+            self.resolution_pct
+        );
+        for b in list {
+            match b.level_pct {
+                Some(l) => {
+                    say!(out, "  {:>10}  {:6.2} %", short_duration(b.duration_s), l);
+                }
+                None => {
+                    say!(out, "  {:>10}  none in range", short_duration(b.duration_s));
                 }
             }
         }
-        if !longest.is_empty() {
-            use super::DurationSearch;
-            say!(
-                out,
-                "\nlongest event ridden through at every phase (refined to 1% of the duration or 0.5 ms):"
-            );
-            for b in &longest {
-                let text = match (b.status, b.longest_ride_through_s, b.shortest_trip_s) {
-                    (DurationSearch::Found, Some(ride), Some(trip)) => format!(
-                        "{} (trips at {})",
-                        crate::units::format_duration(ride),
-                        crate::units::format_duration(trip)
-                    ),
-                    (DurationSearch::RidesThroughAll, Some(ride), _) => {
-                        format!(
-                            "at least {} (the longest searched)",
-                            crate::units::format_duration(ride)
-                        )
-                    }
-                    (_, _, Some(trip)) => {
-                        format!(
-                            "none: trips at {} (the shortest searched)",
-                            crate::units::format_duration(trip)
-                        )
-                    }
-                    _ => "-".into(),
-                };
-                say!(out, "  {:>7}%  {text}", b.level_pct);
+    }
+}
+
+/// The longest ride-through by level.
+fn longest_lines(out: &mut String, longest: &[DurationBoundaryPoint]) {
+    use super::DurationSearch;
+    say!(
+        out,
+        "\nlongest event ridden through at every phase (refined to 1% of the duration or 0.5 ms):"
+    );
+    for b in longest {
+        let text = match (b.status, b.longest_ride_through_s, b.shortest_trip_s) {
+            (DurationSearch::Found, Some(ride), Some(trip)) => format!(
+                "{} (trips at {})",
+                crate::units::format_duration(ride),
+                crate::units::format_duration(trip)
+            ),
+            (DurationSearch::RidesThroughAll, Some(ride), _) => {
+                format!(
+                    "at least {} (the longest searched)",
+                    crate::units::format_duration(ride)
+                )
             }
-        }
-        if let Some(dir) = out_dir {
-            say!(
-                out,
-                "\nwritten: {}/points.csv, boundary.csv, duration-boundary.csv, sweep.json",
-                dir.display()
-            );
-        }
-        if let Some(path) = plot {
-            say!(out, "map: {}", path.display());
-        }
-        out
+            (_, _, Some(trip)) => {
+                format!(
+                    "none: trips at {} (the shortest searched)",
+                    crate::units::format_duration(trip)
+                )
+            }
+            _ => "-".into(),
+        };
+        say!(out, "  {:>7}%  {text}", b.level_pct);
     }
 }
