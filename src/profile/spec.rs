@@ -169,6 +169,9 @@ pub fn parse_spec(spec: &str, edge_s: f64) -> Result<Profile, SpecError> {
 }
 
 /// One item of a compact spec (without its phase suffix), which starts at byte `item_at`.
+///
+/// One arm per event kind, each with its own form and checks: kept whole so that the
+/// grammar reads in one place (over 120 lines).
 fn parse_step(spec: &str, item_at: usize, body: &str) -> Result<Step, SpecError> {
     let mut fields = Vec::new();
     let mut at = item_at;

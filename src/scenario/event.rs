@@ -145,21 +145,7 @@ impl Settled {
             },
         )?;
 
-        let mut probes = vec![Probe::Voltage {
-            node: circuit.parts[self.mains.part].pins[0],
-        }];
-        if let Some(node) = rail {
-            probes.push(Probe::Voltage { node });
-        }
-        for (_, node) in &self.comparators {
-            probes.push(Probe::Voltage { node: *node });
-        }
-        for p in &options.probes {
-            if !probes.contains(p) {
-                probes.push(p.clone());
-            }
-        }
-        let mut trace = Trace::new(probes);
+        let mut trace = Trace::new(self.event_probes(circuit));
         trace.record(sim.network(), &state);
         self.run_through_event(
             &mut sim,
@@ -185,25 +171,7 @@ impl Settled {
             &back,
         )?;
         let run_end_s = state.time;
-        // Comparator decisions count only while the logic rail is above 80% of its value at
-        // the start of the recording (a collapsing supply drags outputs without deciding).
-        let rail_column = rail.and_then(|node| trace.column(&Probe::Voltage { node }));
-        let rail_normal = rail_column.and_then(|c| c.first().copied());
-        let powered = |k: usize| match (rail_column, rail_normal) {
-            (Some(c), Some(normal)) => c[k] >= 0.8 * normal,
-            _ => true,
-        };
-        let comparator_toggles: Vec<(String, usize)> = self
-            .comparators
-            .iter()
-            .map(|(name, node)| {
-                let column = trace.column(&Probe::Voltage { node: *node }).unwrap_or(&[]);
-                (
-                    name.clone(),
-                    toggles(&trace.time, column, onset_s, 1.0, &powered),
-                )
-            })
-            .collect();
+        let comparator_toggles = self.comparator_toggles(&trace, onset_s);
         let window = Window {
             onset_s,
             event_end_s,
@@ -240,5 +208,49 @@ impl Settled {
             trace,
             envelope,
         })
+    }
+
+    /// The probes an event run records: the mains, the logic rail, the comparators' outputs,
+    /// then the caller's own.
+    fn event_probes(&self, circuit: &Circuit) -> Vec<Probe> {
+        let mut probes = vec![Probe::Voltage {
+            node: circuit.parts[self.mains.part].pins[0],
+        }];
+        if let Some(node) = self.rail {
+            probes.push(Probe::Voltage { node });
+        }
+        for (_, node) in &self.comparators {
+            probes.push(Probe::Voltage { node: *node });
+        }
+        for p in &self.options.probes {
+            if !probes.contains(p) {
+                probes.push(p.clone());
+            }
+        }
+        probes
+    }
+
+    /// Each comparator's output toggles from the onset on.
+    fn comparator_toggles(&self, trace: &Trace, onset_s: f64) -> Vec<(String, usize)> {
+        // Comparator decisions count only while the logic rail is above 80% of its value at
+        // the start of the recording (a collapsing supply drags outputs without deciding).
+        let rail_column = self
+            .rail
+            .and_then(|node| trace.column(&Probe::Voltage { node }));
+        let rail_normal = rail_column.and_then(|c| c.first().copied());
+        let powered = |k: usize| match (rail_column, rail_normal) {
+            (Some(c), Some(normal)) => c[k] >= 0.8 * normal,
+            _ => true,
+        };
+        self.comparators
+            .iter()
+            .map(|(name, node)| {
+                let column = trace.column(&Probe::Voltage { node: *node }).unwrap_or(&[]);
+                (
+                    name.clone(),
+                    toggles(&trace.time, column, onset_s, 1.0, &powered),
+                )
+            })
+            .collect()
     }
 }

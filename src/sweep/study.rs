@@ -141,26 +141,7 @@ pub fn run_study(
         });
     }
 
-    let swell_top = grid
-        .levels_pct
-        .iter()
-        .copied()
-        .filter(|&l| l > 100.0)
-        .fold(None, |m: Option<f64>, l| Some(m.map_or(l, |m| m.max(l))));
-    let mut sides: Vec<(&str, (f64, f64))> = vec![("dip", (0.0, 100.0))];
-    if let Some(top) = swell_top {
-        sides.push(("swell", (100.0, top)));
-    }
-    let my_durations = shard(&grid.durations_s, k, n);
-    let level_todo: Vec<(&str, (f64, f64), f64)> = sides
-        .iter()
-        .flat_map(|&(side, range)| my_durations.iter().map(move |&d| (side, range, d)))
-        .filter(|(side, _, d)| {
-            !boundaries
-                .iter()
-                .any(|(s, b)| s == side && b.duration_s == *d)
-        })
-        .collect();
+    let level_todo = level_searches(grid, (k, n), &boundaries);
     let duration_todo: Vec<f64> = shard(&grid.levels_pct, k, n)
         .into_iter()
         .filter(|l| !durations.iter().any(|b| b.level_pct == *l))
@@ -227,6 +208,35 @@ pub fn run_study(
         boundaries,
         durations,
     })
+}
+
+/// The level boundary searches a shard still has to run: (side, level range, duration), for
+/// the dips and, if the grid has swells, the swells.
+fn level_searches(
+    grid: &Grid,
+    (k, n): (usize, usize),
+    boundaries: &[(String, BoundaryPoint)],
+) -> Vec<(&'static str, (f64, f64), f64)> {
+    let swell_top = grid
+        .levels_pct
+        .iter()
+        .copied()
+        .filter(|&l| l > 100.0)
+        .fold(None, |m: Option<f64>, l| Some(m.map_or(l, |m| m.max(l))));
+    let mut sides: Vec<(&str, (f64, f64))> = vec![("dip", (0.0, 100.0))];
+    if let Some(top) = swell_top {
+        sides.push(("swell", (100.0, top)));
+    }
+    let my_durations = shard(&grid.durations_s, k, n);
+    sides
+        .iter()
+        .flat_map(|&(side, range)| my_durations.iter().map(move |&d| (side, range, d)))
+        .filter(|(side, _, d)| {
+            !boundaries
+                .iter()
+                .any(|(s, b)| s == side && b.duration_s == *d)
+        })
+        .collect()
 }
 
 #[cfg(test)]
