@@ -166,7 +166,7 @@ fn plan_of(
         .nominal
         .map(|(_, f)| f)
         .or_else(|| {
-            sagtrip::scenario::find_mains(&circuit, None)
+            sagtrip::scenario::find_mains(circuit, None)
                 .ok()
                 .map(|m| m.frequency_hz)
         })
