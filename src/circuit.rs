@@ -292,9 +292,9 @@ pub struct BipolarParams {
     pub polarity: f64,
     /// Transport saturation current Is, amperes.
     pub saturation_current: f64,
-    /// Forward current gain beta_F.
+    /// Forward current gain `beta_F`.
     pub forward_beta: f64,
-    /// Reverse current gain beta_R.
+    /// Reverse current gain `beta_R`.
     pub reverse_beta: f64,
 }
 

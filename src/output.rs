@@ -26,7 +26,9 @@ where
         let file = fs::File::create(&temp)?;
         let mut writer = io::BufWriter::new(file);
         fill(&mut writer)?;
-        let file = writer.into_inner().map_err(|e| e.into_error())?;
+        let file = writer
+            .into_inner()
+            .map_err(std::io::IntoInnerError::into_error)?;
         file.sync_all()?;
         fs::rename(&temp, path)
     })();

@@ -306,8 +306,8 @@ mod tests {
             crate::circuit_file::parse_circuit(crate::builtin::REFERENCE_GUARD, "guard").unwrap();
         let mut trace = Trace::new(vec![Probe::Voltage { node: 1 }]);
         for k in 0..=100 {
-            trace.time.push(k as f64 * 0.01);
-            trace.columns[0].push(k as f64);
+            trace.time.push(f64::from(k) * 0.01);
+            trace.columns[0].push(f64::from(k));
         }
         let stats = settled_values(&circuit, &trace, 0.2);
         // Last 0.2 s of a ramp from 0 to 100 over 1 s: 80 .. 100, mean 90.

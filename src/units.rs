@@ -236,14 +236,6 @@ pub struct Engineering(pub f64, pub Quantity);
 
 impl fmt::Display for Engineering {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        let Engineering(value, quantity) = *self;
-        let unit = quantity.symbol();
-        if value == 0.0 || !value.is_finite() {
-            return write!(f, "{value} {unit}");
-        }
-        if value.abs() < 0.999_999_5e-15 {
-            return write!(f, "{value:.3e} {unit}");
-        }
         const PREFIXES: [(f64, &str); 9] = [
             (1e12, "T"),
             (1e9, "G"),
@@ -255,6 +247,14 @@ impl fmt::Display for Engineering {
             (1e-9, "n"),
             (1e-12, "p"),
         ];
+        let Engineering(value, quantity) = *self;
+        let unit = quantity.symbol();
+        if value == 0.0 || !value.is_finite() {
+            return write!(f, "{value} {unit}");
+        }
+        if value.abs() < 0.999_999_5e-15 {
+            return write!(f, "{value:.3e} {unit}");
+        }
         let magnitude = value.abs();
         let (scale, prefix) = PREFIXES
             .iter()
@@ -275,7 +275,7 @@ mod tests {
     #[test]
     fn durations_read_well() {
         assert_eq!(format_duration(0.0005), "0.50 ms");
-        assert_eq!(format_duration(0.5455594781168519), "545.6 ms");
+        assert_eq!(format_duration(0.545_559_478_116_851_9), "545.6 ms");
         assert_eq!(format_duration(2.2816), "2.282 s");
         assert_eq!(format_duration(81.46), "81.5 s");
     }

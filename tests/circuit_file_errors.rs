@@ -188,7 +188,7 @@ fn every_problem_is_reported_at_once() {
     let rendered = error.to_string();
     assert!(rendered.contains("bad.toml has 2 problems"));
     assert!(rendered.contains("| resistance = 0"));
-    assert!(rendered.contains("^"));
+    assert!(rendered.contains('^'));
 }
 
 #[test]

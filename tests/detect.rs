@@ -36,8 +36,8 @@ fn add_harmonics_and_noise(v: &mut [f64]) {
         let t = k as f64 / f64::from(RATE);
         let w = 2.0 * std::f64::consts::PI * 50.0;
         seed = seed
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
         let noise = ((seed >> 11) as f64 / (1u64 << 53) as f64 - 0.5) * 2.0 * 0.01 * amplitude;
         *x += 0.05 * amplitude * (3.0 * w * t).sin()
             + 0.03 * amplitude * (5.0 * w * t + 0.3).sin()
@@ -165,7 +165,8 @@ fn wav_round_trip(volts: &[f64], format: SampleFormat, name: &str) -> Vec<f64> {
     let path =
         std::env::temp_dir().join(format!("sagtrip-detect-{}-{name}.wav", std::process::id()));
     std::fs::write(&path, bytes).unwrap();
-    let samples = sagtrip::recording::open(&path, 0, &Default::default()).unwrap();
+    let samples =
+        sagtrip::recording::open(&path, 0, &sagtrip::recording::CsvColumns::default()).unwrap();
     assert_eq!(samples.sample_rate, f64::from(RATE));
     samples.map(|s| s.unwrap() * 650.0).collect()
 }
@@ -199,7 +200,7 @@ fn csv_recordings_with_odd_but_valid_layout_are_read() {
     let path = std::env::temp_dir().join(format!("sagtrip-detect-{}-odd.csv", std::process::id()));
     let mut text = String::from("# logger export\n\n \"Voltage\" ; \"Time\" ; \"note\"\n");
     for k in 0..2000 {
-        let t = k as f64 / 10_000.0;
+        let t = f64::from(k) / 10_000.0;
         text += &format!(
             " {:.6} ;{t:.6}; x\n",
             325.0 * (2.0 * std::f64::consts::PI * 50.0 * t).sin()
@@ -231,7 +232,8 @@ fn bad_recordings_are_refused_with_their_place() {
     };
     let columns = sagtrip::recording::CsvColumns::default();
     let open = |p: &std::path::Path| {
-        sagtrip::recording::open(p, 0, &columns).map(|s| s.collect::<Result<Vec<_>, _>>())
+        sagtrip::recording::open(p, 0, &columns)
+            .map(std::iter::Iterator::collect::<Result<Vec<_>, _>>)
     };
     let empty = write("empty.csv", "");
     assert!(open(&empty).unwrap_err().to_string().contains("empty"));
@@ -277,7 +279,8 @@ fn the_example_recordings_hold_the_events_they_are_made_of() {
         let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
             .join("waveforms")
             .join(file);
-        let samples = sagtrip::recording::open(&path, 0, &Default::default()).unwrap();
+        let samples =
+            sagtrip::recording::open(&path, 0, &sagtrip::recording::CsvColumns::default()).unwrap();
         let rate = samples.sample_rate;
         let mut d = sagtrip::detect::Detector::new(rate, 230.0, 50.0, Thresholds::default());
         for s in samples {

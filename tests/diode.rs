@@ -51,9 +51,9 @@ fn simulated_current(volts: f64, ohms: f64, is: f64, n: f64) -> f64 {
 fn series_resistor_diode_matches_lambert_w() {
     // (V, R, Is, n, golden I derived with the Lambert W closed form, Banwell and Jayakumar 2000)
     let cases = [
-        (5.0, 1e3, 1e-14, 1.0, 4.307456e-3),
-        (1.0, 1e3, 1e-14, 1.0, 0.3708531e-3),
-        (0.5, 1e3, 1e-14, 1.0, 2.296424e-6),
+        (5.0, 1e3, 1e-14, 1.0, 4.307_456e-3),
+        (1.0, 1e3, 1e-14, 1.0, 0.370_853_1e-3),
+        (0.5, 1e3, 1e-14, 1.0, 2.296_424e-6),
         (5.0, 100.0, 1e-12, 1.5, 40.52837e-3),
     ];
     for (v, r, is, n, golden) in cases {

@@ -178,8 +178,8 @@ fn dense_lu_agrees_with_nalgebra() {
     let mut seed: u64 = 12345;
     let mut next = || {
         seed = seed
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
         ((seed >> 11) as f64 / (1u64 << 53) as f64) * 2.0 - 1.0
     };
     let mut reference = nalgebra::DMatrix::<f64>::zeros(n, n);
@@ -242,8 +242,8 @@ fn sparse_system(n: usize, seed: u64, scale_row: usize) -> (Vec<f64>, Vec<bool>,
     let mut state = seed;
     let mut next = || {
         state = state
-            .wrapping_mul(6364136223846793005)
-            .wrapping_add(1442695040888963407);
+            .wrapping_mul(6_364_136_223_846_793_005)
+            .wrapping_add(1_442_695_040_888_963_407);
         (state >> 11) as f64 / (1u64 << 53) as f64
     };
     let mut a = vec![0.0; dim * dim];
@@ -302,7 +302,7 @@ fn sparse_lu_agrees_with_nalgebra_and_reuses_its_order() {
         check(&x, &expected);
         // Same pattern, new values: the kept order is reused.
         let mut a1 = a0.clone();
-        for v in a1.iter_mut() {
+        for v in &mut a1 {
             *v *= 1.5;
         }
         let mut x = b.clone();

@@ -107,11 +107,11 @@ fn cycle_rms(w: &Waveform, start: f64) -> f64 {
     let n = 20_000;
     let sum: f64 = (0..n)
         .map(|k| {
-            let v = w.value(start + (k as f64 + 0.5) / n as f64 * 0.02);
+            let v = w.value(start + (f64::from(k) + 0.5) / f64::from(n) * 0.02);
             v * v
         })
         .sum();
-    (sum / n as f64).sqrt()
+    (sum / f64::from(n)).sqrt()
 }
 
 #[test]
@@ -647,7 +647,7 @@ fn skipped_steady_cycles_are_filled_in_traces_and_plots() {
 fn durations_print_to_four_decimals() {
     // A bisected duration reads as people write it, not as every digit of its binary value.
     assert_eq!(
-        Duration::Seconds(0.5455594781168519).to_string(),
+        Duration::Seconds(0.545_559_478_116_851_9).to_string(),
         "545.5595ms"
     );
     assert_eq!(Duration::Seconds(2.5).to_string(), "2.5s");

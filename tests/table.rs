@@ -222,7 +222,7 @@ fn screening_keeps_the_value_that_sets_the_thresholds() {
         phases: vec![0.0],
         thresholds: true,
         ride_through_levels: Vec::new(),
-        threshold_options: Default::default(),
+        threshold_options: sagtrip::thresholds::ThresholdOptions::default(),
     };
     let options = EventOptions::default();
     let source = sagtrip::table::Source {
@@ -246,7 +246,12 @@ fn screening_keeps_the_value_that_sets_the_thresholds() {
     assert_eq!(effects[0].percent, 100.0);
     assert_eq!(effects[0].quantity, "under-voltage trip", "{effects:?}");
     let settled = settle(&guard, &options).unwrap();
-    let nominal = sagtrip::thresholds::find(&settled, &guard, &Default::default()).unwrap();
+    let nominal = sagtrip::thresholds::find(
+        &settled,
+        &guard,
+        &sagtrip::thresholds::ThresholdOptions::default(),
+    )
+    .unwrap();
     let uv = nominal.under.trip.unwrap().volts;
     let ratio = |r_bot: f64| (68e3 + r_bot) / r_bot;
     let rule = uv * (ratio(14.25e3) - ratio(15.75e3)) / ratio(15e3);

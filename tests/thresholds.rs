@@ -44,16 +44,16 @@ fn settled_extremes(guard: &Circuit, name: &str) -> (f64, f64) {
 }
 
 /// Under- and over-voltage trip levels of the reference guard (or a variant with other
-/// zener, r_top and r_bot values) from the divider rule, volts RMS. A consistency check:
+/// zener, `r_top` and `r_bot` values) from the divider rule, volts RMS. A consistency check:
 /// the zener and the dividers are worked out here, but the scale from the line to the
 /// sense node is read from the simulator's own settled run.
 ///
 /// Ohm's law and the divider rule (from memory): the zener, `vz0` at 5 mA with a 10 ohm
 /// slope, is fed from the 12 V rail through 2.2k and loaded by the 1.8k + 2.4k + 5.6k =
-/// 9.8k reference divider; the comparators switch when sense_raw crosses
-/// ref * (r_top + r_bot) / r_bot. The peak detector's output scales with the line voltage:
-/// the under-voltage comparator first fires when the ripple's valley reaches ref_lo, the
-/// over-voltage one when the peak reaches ref_hi; the scale is taken from the settled run
+/// 9.8k reference divider; the comparators switch when `sense_raw` crosses
+/// ref * (`r_top` + `r_bot`) / `r_bot`. The peak detector's output scales with the line voltage:
+/// the under-voltage comparator first fires when the ripple's valley reaches `ref_lo`, the
+/// over-voltage one when the peak reaches `ref_hi`; the scale is taken from the settled run
 /// at nominal, 230 V (transformer regulation is not derived here).
 fn divider_rule_thresholds(guard: &Circuit, vz0: f64, r_top: f64, r_bot: f64) -> (f64, f64) {
     let mut vz = vz0;

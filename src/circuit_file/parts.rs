@@ -647,11 +647,14 @@ impl Reader<'_> {
 
 /// A parameter's value, or its field's default (0 where it has none).
 fn value_or_default(values: &HashMap<String, Located>, fields: &[Field], n: &str) -> f64 {
-    values.get(n).map(|l| l.value).unwrap_or_else(|| {
-        fields
-            .iter()
-            .find(|f| f.name == n)
-            .and_then(|f| f.default)
-            .unwrap_or(0.0)
-    })
+    values.get(n).map_or_else(
+        || {
+            fields
+                .iter()
+                .find(|f| f.name == n)
+                .and_then(|f| f.default)
+                .unwrap_or(0.0)
+        },
+        |l| l.value,
+    )
 }

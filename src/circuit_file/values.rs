@@ -119,7 +119,7 @@ impl Reader<'_> {
                         .get(key)
                         .map(|v| self.number(v, &format!("{path}.{key}"), quantity))
                 };
-                for (key, _) in table.iter() {
+                for (key, _) in table {
                     if !["value", "min", "max"].contains(&key.get_ref().as_ref()) {
                         self.problem(
                             key.span(),

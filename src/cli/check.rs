@@ -3,7 +3,7 @@
 use super::*;
 
 pub(crate) fn part_summary(spec: &PartSpec) -> String {
-    use Quantity::*;
+    use Quantity::{Capacitance, Current, Inductance, Resistance, Time, Transconductance, Voltage};
     let e = |v: f64, q: Quantity| Engineering(v, q).to_string();
     match spec {
         PartSpec::Resistor { resistance } => e(*resistance, Resistance),

@@ -159,8 +159,8 @@ impl LimitArgs {
     fn options(&self, nominal: Option<&str>) -> Result<EventOptions, String> {
         Ok(EventOptions {
             nominal: nominal.map(nominal_option).transpose()?,
-            settle_limit_s: time_option(&self.power_up_limit, "power-up-limit")?,
-            restore_limit_s: time_option(&self.restore_limit, "restore-limit")?,
+            settle_limit_s: time_option(self.power_up_limit.as_deref(), "power-up-limit")?,
+            restore_limit_s: time_option(self.restore_limit.as_deref(), "restore-limit")?,
             ..EventOptions::default()
         })
     }
@@ -191,22 +191,21 @@ pub(crate) fn load_circuit_and_text(
     Ok((circuit, name, text))
 }
 
-pub(crate) fn time_option(text: &Option<String>, name: &str) -> Result<Option<f64>, String> {
-    text.as_deref()
-        .map(|t| {
-            parse_value(t, Quantity::Time)
-                .map_err(|e| format!("--{name}: {e}"))
-                .and_then(|v| {
-                    if (MIN_TIME_S..=MAX_TIME_S).contains(&v) {
-                        Ok(v)
-                    } else {
-                        Err(format!(
-                            "--{name} {t}: allowed from {MIN_TIME_S} s to {MAX_TIME_S} s (one day)"
-                        ))
-                    }
-                })
-        })
-        .transpose()
+pub(crate) fn time_option(text: Option<&str>, name: &str) -> Result<Option<f64>, String> {
+    text.map(|t| {
+        parse_value(t, Quantity::Time)
+            .map_err(|e| format!("--{name}: {e}"))
+            .and_then(|v| {
+                if (MIN_TIME_S..=MAX_TIME_S).contains(&v) {
+                    Ok(v)
+                } else {
+                    Err(format!(
+                        "--{name} {t}: allowed from {MIN_TIME_S} s to {MAX_TIME_S} s (one day)"
+                    ))
+                }
+            })
+    })
+    .transpose()
 }
 
 /// The range of a time option, seconds: 1 ns to one day.

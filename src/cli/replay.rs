@@ -79,7 +79,7 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
     );
     let replay = settled
         .replay_with_progress(scaled.volts(), rate, thresholds.clone(), probes, &mut |s| {
-            bar.set_position(s as u64)
+            bar.set_position(s as u64);
         })
         .map_err(|e| {
             let message = format!("{}: {e}", args.input.recording.display());

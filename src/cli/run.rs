@@ -70,7 +70,7 @@ pub(crate) struct RunArgs {
 pub(crate) enum StartArg {
     /// Start at the DC operating point with the sources at their t = 0 values.
     OperatingPoint,
-    /// Start from rest: capacitors discharged (or at their initial_voltage).
+    /// Start from rest: capacitors discharged (or at their `initial_voltage`).
     Rest,
 }
 
@@ -95,7 +95,7 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
     }
     let (circuit, name) = load_circuit(args.circuit.as_deref())?;
     let mut settings = Settings::default();
-    if let Some(step) = time_option(&args.max_step, "max-step")? {
+    if let Some(step) = time_option(args.max_step.as_deref(), "max-step")? {
         settings.max_step_s = step;
     }
     let has_relay = circuit
@@ -103,7 +103,7 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
         .iter()
         .any(|p| matches!(p.spec, PartSpec::Relay(_)));
     let mains_hz = circuit.mains_frequency_hz();
-    let duration = time_option(&args.duration, "duration")?.unwrap_or(if has_relay {
+    let duration = time_option(args.duration.as_deref(), "duration")?.unwrap_or(if has_relay {
         2.0
     } else {
         mains_hz.map_or(0.1, |f| 10.0 / f)
@@ -185,10 +185,10 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
         rail: args.rail.clone(),
         ..args.limits.options(args.nominal.as_deref())?
     };
-    if let Some(step) = time_option(&args.max_step, "max-step")? {
+    if let Some(step) = time_option(args.max_step.as_deref(), "max-step")? {
         options.settings.max_step_s = step;
     }
-    let edge = time_option(&args.edge, "edge")?.unwrap_or(DEFAULT_EDGE_S);
+    let edge = time_option(args.edge.as_deref(), "edge")?.unwrap_or(DEFAULT_EDGE_S);
     options.probes = args
         .probes
         .iter()

@@ -46,7 +46,7 @@ fn square_law(p: &MosfetParams, vgs: f64, vds: f64) -> (f64, f64, f64) {
 
 impl Mosfet {
     /// Current from drain to source and its partial derivatives with respect to
-    /// (v_drain, v_gate, v_source).
+    /// (`v_drain`, `v_gate`, `v_source`).
     pub(super) fn evaluate(&self, x: &[f64]) -> (f64, [f64; 3]) {
         let pol = self.params.polarity;
         // Work in N-channel terms on polarity-scaled voltages.

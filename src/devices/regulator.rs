@@ -62,7 +62,7 @@ impl Regulator {
         (p.output_voltage - sp, dsp)
     }
 
-    /// (V_pass, d V_pass / dj).
+    /// (`V_pass`, d `V_pass` / dj).
     fn pass_drop(&self, j: f64) -> (f64, f64) {
         let p = &self.params;
         let softness = 1e-4 * p.current_limit;

@@ -73,7 +73,9 @@ impl DenseLu {
             let inv = 1.0 / pivot;
             for i in k + 1..d {
                 let factor = a[i * d + k] * inv;
-                if factor != 0.0 {
+                if factor == 0.0 {
+                    a[i * d + k] = 0.0;
+                } else {
                     a[i * d + k] = factor;
                     let (upper, lower) = a.split_at_mut(i * d);
                     let pivot_row = &upper[k * d + k + 1..k * d + d];
@@ -81,8 +83,6 @@ impl DenseLu {
                     for (t, p) in target.iter_mut().zip(pivot_row) {
                         *t -= factor * p;
                     }
-                } else {
-                    a[i * d + k] = 0.0;
                 }
             }
         }

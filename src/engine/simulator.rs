@@ -67,7 +67,7 @@ impl Simulator {
                 .network
                 .devices
                 .iter()
-                .map(|d| d.initial_mode())
+                .map(super::super::devices::Device::initial_mode)
                 .collect(),
             pending: Vec::with_capacity(PENDING_CAPACITY),
             past_x: vec![0.0; 2 * dim],

@@ -2,7 +2,7 @@
 //! inputs and outputs, the relay coil current and the load path, with the event window
 //! shaded and the measured latencies marked.
 //!
-//! SVG and PNG. Text is drawn with the DejaVu Sans font compiled into the binary, so PNG
+//! SVG and PNG. Text is drawn with the `DejaVu` Sans font compiled into the binary, so PNG
 //! output needs no fonts on the machine.
 
 use crate::circuit::{Circuit, PartSpec};

@@ -181,15 +181,15 @@ fn parse_step(spec: &str, item_at: usize, body: &str) -> Result<Step, SpecError>
     }
     let kind = fields[0];
     let expect = |n: usize, form: &str| -> Result<(), SpecError> {
-        if fields.len() != n {
+        if fields.len() == n {
+            Ok(())
+        } else {
             Err(spec_error(
                 spec,
                 item_at,
                 body.len(),
                 format!("`{}` takes the form {form}", kind.text.trim()),
             ))
-        } else {
-            Ok(())
         }
     };
     Ok(match kind.text.trim() {

@@ -99,7 +99,7 @@ pub fn open(path: &Path, channel: usize, columns: &CsvColumns) -> Result<Samples
         .as_deref()
     {
         Some("wav") => open_wav(path, channel),
-        Some("csv") | Some("txt") => open_csv(path, columns),
+        Some("csv" | "txt") => open_csv(path, columns),
         _ => Err(RecordingError::Format {
             path: path.display().to_string(),
             message: "unsupported recording: give a .wav or .csv file".into(),

@@ -14,8 +14,7 @@ pub(crate) fn open_wav(path: &Path, channel: usize) -> Result<Samples, Recording
     let channels = usize::from(spec.channels);
     if channel >= channels {
         return Err(format_error(format!(
-            "channel {} asked for, the file has {channels} (channels count from 0)",
-            channel
+            "channel {channel} asked for, the file has {channels} (channels count from 0)"
         )));
     }
     let rate = f64::from(spec.sample_rate);

@@ -194,7 +194,7 @@ impl<'a> Report<'a> {
         let mut levels = r.grid.levels_pct.clone();
         levels.sort_by(|a, b| b.total_cmp(a));
         for l in levels {
-            let mut row = format!("{:>7}% ", l);
+            let mut row = format!("{l:>7}% ");
             for &d in &r.grid.durations_s {
                 let c = map.iter().find(|c| c.level_pct == l && c.duration_s == d);
                 let mark = match c.map(|c| (c.outcome, c.trip_latency_ms)) {

@@ -104,7 +104,7 @@ pub fn default_plan(class: u8, frequency_hz: f64) -> Result<Plan, NoPreferredLev
         phases: DEFAULT_PHASES.to_vec(),
         thresholds: true,
         ride_through_levels: DEFAULT_RIDE_THROUGH_LEVELS.to_vec(),
-        threshold_options: Default::default(),
+        threshold_options: crate::thresholds::ThresholdOptions::default(),
     })
 }
 
@@ -238,6 +238,6 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
         phases,
         thresholds: file.thresholds.unwrap_or(true),
         ride_through_levels,
-        threshold_options: Default::default(),
+        threshold_options: crate::thresholds::ThresholdOptions::default(),
     })
 }
