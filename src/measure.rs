@@ -18,8 +18,8 @@ pub struct Window {
     pub run_end_s: f64,
     /// Start and end of each disturbance of the event (gaps excluded), seconds.
     pub disturbances: Vec<(f64, f64)>,
-    /// Index of the load relay's part.
-    pub relay_part: usize,
+    /// Index of the load relay's part (`None`: no relay, so no relay event is counted).
+    pub relay_part: Option<usize>,
     /// Whether the load path (normally-open contact) was closed at onset.
     pub closed_at_onset: bool,
 }
@@ -131,7 +131,7 @@ pub fn chatters(openings: &[Opening], disturbances: usize) -> bool {
 pub fn measure(events: &[DiscreteEvent], window: &Window) -> Measurements {
     let mine: Vec<&DiscreteEvent> = events
         .iter()
-        .filter(|e| e.part == window.relay_part && e.time >= window.onset_s - 1e-12)
+        .filter(|e| Some(e.part) == window.relay_part && e.time >= window.onset_s - 1e-12)
         .collect();
     let ms = |s: f64| s * 1e3;
     let first = |kind: EventKind, after: f64| {
@@ -294,7 +294,7 @@ mod tests {
             event_end_s: 1.2,
             run_end_s: 3.0,
             disturbances: vec![(1.0, 1.2)],
-            relay_part: 3,
+            relay_part: Some(3),
             closed_at_onset: true,
         }
     }

@@ -2,7 +2,7 @@
 //! events (IEC 61000-4-30: duration within one half cycle, residual within 0.5% of the
 //! declared voltage), and recordings read back from files.
 
-use sagtrip::detect::{detect, EventKind, Thresholds};
+use sagtrip::detect::{detect, DisturbanceKind, Thresholds};
 use sagtrip::profile::{parse_spec, DEFAULT_EDGE_S};
 use sagtrip::synth::{samples, SampleFormat, SynthOptions};
 
@@ -49,11 +49,11 @@ fn add_harmonics_and_noise(v: &mut [f64]) {
 fn known_dips_swells_and_interruptions_are_found_within_the_method_accuracy() {
     // (spec, kind, level %, duration s): levels and durations of the applied events.
     let cases = [
-        ("dip:40%:10cyc", EventKind::Dip, 40.0, 0.2),
-        ("dip:70%:25cyc@90", EventKind::Dip, 70.0, 0.5),
-        ("interrupt:250cyc", EventKind::Interruption, 0.0, 5.0),
-        ("swell:120%:25cyc", EventKind::Swell, 120.0, 0.5),
-        ("dip:80%:3cyc@45", EventKind::Dip, 80.0, 0.06),
+        ("dip:40%:10cyc", DisturbanceKind::Dip, 40.0, 0.2),
+        ("dip:70%:25cyc@90", DisturbanceKind::Dip, 70.0, 0.5),
+        ("interrupt:250cyc", DisturbanceKind::Interruption, 0.0, 5.0),
+        ("swell:120%:25cyc", DisturbanceKind::Swell, 120.0, 0.5),
+        ("dip:80%:3cyc@45", DisturbanceKind::Dip, 80.0, 0.06),
     ];
     for (spec, kind, level, duration) in cases {
         let v = synthetic(spec, 0.5, false);
@@ -117,7 +117,7 @@ fn a_half_cycle_interruption_reads_as_the_method_predicts() {
     let d = detect(&v, f64::from(RATE), 230.0, 50.0, Thresholds::default());
     assert_eq!(d.events.len(), 1);
     let e = &d.events[0];
-    assert_eq!(e.kind, EventKind::Dip);
+    assert_eq!(e.kind, DisturbanceKind::Dip);
     assert!((e.level_pct - 70.71).abs() < 0.3, "{}", e.level_pct);
     assert!((e.duration_s - 0.02).abs() < 0.002, "{}", e.duration_s);
 }
@@ -263,16 +263,20 @@ fn bad_recordings_are_refused_with_their_place() {
 #[test]
 fn the_example_recordings_hold_the_events_they_are_made_of() {
     // waveforms/README.md lists what each example holds; make.sh builds them from profiles.
-    let expected: &[(&str, &[EventKind])] = &[
-        ("motor-start-sag.wav", &[EventKind::Dip]),
-        ("generator-swell.wav", &[EventKind::Swell]),
+    let expected: &[(&str, &[DisturbanceKind])] = &[
+        ("motor-start-sag.wav", &[DisturbanceKind::Dip]),
+        ("generator-swell.wav", &[DisturbanceKind::Swell]),
         (
             "recloser.wav",
-            &[EventKind::Interruption, EventKind::Interruption],
+            &[DisturbanceKind::Interruption, DisturbanceKind::Interruption],
         ),
         (
             "noisy-minute.wav",
-            &[EventKind::Dip, EventKind::Swell, EventKind::Interruption],
+            &[
+                DisturbanceKind::Dip,
+                DisturbanceKind::Swell,
+                DisturbanceKind::Interruption,
+            ],
         ),
     ];
     for (file, kinds) in expected {
@@ -286,7 +290,7 @@ fn the_example_recordings_hold_the_events_they_are_made_of() {
         for s in samples {
             d.push(s.unwrap() * 650.538);
         }
-        let found: Vec<EventKind> = d.finish().events.iter().map(|e| e.kind).collect();
+        let found: Vec<DisturbanceKind> = d.finish().events.iter().map(|e| e.kind).collect();
         assert_eq!(&found, kinds, "{file}");
     }
 }
@@ -299,35 +303,39 @@ fn classes_are_taken_on_the_level_as_reported_at_every_table_boundary() {
     // 1.1-1.8 pu, interruption below 0.1 pu). 10 cycles: 210 ms by the IEC 61000-4-30
     // method, EN 50160 column 2 (200 < t <= 500 ms) and IEEE 1159 "instantaneous".
     // `None`: not an event at all (a dip starts below 90%, a swell above 110%).
-    type Expected = Option<(EventKind, &'static str, &'static str)>;
+    type Expected = Option<(DisturbanceKind, &'static str, &'static str)>;
     let cases: [(&str, Expected); 8] = [
         ("dip:90%:10cyc", None),
         // The window across the onset reads sqrt((1 + 0.8^2) / 2) = 90.55%, not yet a dip
         // (derived from the IEC 61000-4-30 window): 200 ms, column 1.
         (
             "dip:80%:10cyc",
-            Some((EventKind::Dip, "A1", "instantaneous sag")),
+            Some((DisturbanceKind::Dip, "A1", "instantaneous sag")),
         ),
         (
             "dip:70%:10cyc",
-            Some((EventKind::Dip, "B2", "instantaneous sag")),
+            Some((DisturbanceKind::Dip, "B2", "instantaneous sag")),
         ),
         (
             "dip:40%:10cyc",
-            Some((EventKind::Dip, "C2", "instantaneous sag")),
+            Some((DisturbanceKind::Dip, "C2", "instantaneous sag")),
         ),
         (
             "dip:10%:10cyc",
-            Some((EventKind::Dip, "D2", "instantaneous sag")),
+            Some((DisturbanceKind::Dip, "D2", "instantaneous sag")),
         ),
         (
             "dip:5%:10cyc",
-            Some((EventKind::Interruption, "D2", "momentary interruption")),
+            Some((
+                DisturbanceKind::Interruption,
+                "D2",
+                "momentary interruption",
+            )),
         ),
         ("swell:110%:10cyc", None),
         (
             "swell:120%:10cyc",
-            Some((EventKind::Swell, "S1", "instantaneous swell")),
+            Some((DisturbanceKind::Swell, "S1", "instantaneous swell")),
         ),
     ];
     for (spec, expected) in cases {
@@ -346,8 +354,14 @@ fn classes_are_taken_on_the_level_as_reported_at_every_table_boundary() {
     }
     // Rounding to the reported resolution decides: 39.996% reports as 40.00%, row C.
     assert_eq!(sagtrip::detect::reported_level(39.996), 40.0);
-    assert_eq!(sagtrip::detect::en_50160(EventKind::Dip, 0.21, 40.0), "C2");
-    assert_eq!(sagtrip::detect::en_50160(EventKind::Dip, 0.21, 39.99), "D2");
+    assert_eq!(
+        sagtrip::detect::en_50160(DisturbanceKind::Dip, 0.21, 40.0),
+        "C2"
+    );
+    assert_eq!(
+        sagtrip::detect::en_50160(DisturbanceKind::Dip, 0.21, 39.99),
+        "D2"
+    );
 }
 
 #[test]

@@ -49,7 +49,7 @@ pub(crate) fn merge(args: &MergeArgs) -> Outcome {
             duration_boundary: &durations,
             frequency_hz: settings["frequency_hz"].as_f64().unwrap_or(50.0),
             resolution_pct: settings["resolution_pct"].as_f64().unwrap_or(0.5),
-            shard: (1, 1),
+            shard: sagtrip::sweep::Shard::WHOLE,
             wall_s: 0.0,
             settle_wall_s: None,
         },

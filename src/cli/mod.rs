@@ -158,7 +158,13 @@ impl LimitArgs {
     /// Event options with these limits and the given nominal supply.
     fn options(&self, nominal: Option<&str>) -> Result<EventOptions, String> {
         Ok(EventOptions {
-            nominal: nominal.map(nominal_option).transpose()?,
+            nominal: nominal
+                .map(nominal_option)
+                .transpose()?
+                .map(|(rms_v, frequency_hz)| sagtrip::scenario::Nominal {
+                    rms_v,
+                    frequency_hz,
+                }),
             settle_limit_s: time_option(self.power_up_limit.as_deref(), "power-up-limit")?,
             restore_limit_s: time_option(self.restore_limit.as_deref(), "restore-limit")?,
             ..EventOptions::default()

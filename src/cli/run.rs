@@ -206,7 +206,9 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
     }
     let mains =
         find_mains(&circuit, options.mains.as_deref()).map_err(|e| format!("{name}: {e}"))?;
-    let frequency = options.nominal.map_or(mains.frequency_hz, |n| n.1);
+    let frequency = options
+        .nominal
+        .map_or(mains.frequency_hz, |n| n.frequency_hz);
     let profile = match &args.event_file {
         Some(path) => {
             let text = std::fs::read_to_string(path)

@@ -176,7 +176,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         grid,
         resolution_pct: args.resolution,
         refine: !args.no_refine,
-        shard: (k, n),
+        shard: sagtrip::sweep::Shard { index: k, count: n },
         edge_s: DEFAULT_EDGE_S,
     };
     let settings = study.journal_settings(&name, &circuit.title, &text, settled.rms, frequency);
@@ -226,7 +226,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
             duration_boundary: &durations_done,
             frequency_hz: frequency,
             resolution_pct: args.resolution,
-            shard: (k, n),
+            shard: sagtrip::sweep::Shard { index: k, count: n },
             wall_s: wall,
             settle_wall_s: Some(settle_wall),
         },

@@ -164,7 +164,7 @@ fn plan_of(
     use sagtrip::table::{default_plan, parse_plan};
     let frequency_hint = options
         .nominal
-        .map(|(_, f)| f)
+        .map(|n| n.frequency_hz)
         .or_else(|| {
             sagtrip::scenario::find_mains(circuit, None)
                 .ok()

@@ -5,7 +5,12 @@ use super::*;
 /// The IEEE 1159-2009 Table 2 category of an event. Durations: 0.5 to 30 cycles
 /// instantaneous, 30 cycles to 3 s momentary, 3 s to 1 min temporary, beyond sustained (lower
 /// bounds inclusive). A magnitude outside the category's range is noted.
-pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz: f64) -> String {
+pub fn ieee_1159(
+    kind: DisturbanceKind,
+    duration_s: f64,
+    level_pct: f64,
+    frequency_hz: f64,
+) -> String {
     let cycles = duration_s * frequency_hz;
     let pu = level_pct / 100.0;
     let span = if cycles < 0.5 {
@@ -20,7 +25,7 @@ pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz:
         "sustained"
     };
     let (name, range) = match kind {
-        EventKind::Interruption => {
+        DisturbanceKind::Interruption => {
             let name = if span == "instantaneous" {
                 "momentary"
             } else {
@@ -28,7 +33,7 @@ pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz:
             };
             return format!("{name} interruption");
         }
-        EventKind::Dip => match span {
+        DisturbanceKind::Dip => match span {
             "sustained" => ("undervoltage", (0.8, 0.9)),
             s => (
                 if s == "instantaneous" {
@@ -41,7 +46,7 @@ pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz:
                 (0.1, 0.9),
             ),
         },
-        EventKind::Swell => match span {
+        DisturbanceKind::Swell => match span {
             "instantaneous" => ("instantaneous swell", (1.1, 1.8)),
             "momentary" => ("momentary swell", (1.1, 1.4)),
             "temporary" => ("temporary swell", (1.1, 1.2)),
@@ -63,7 +68,7 @@ pub fn ieee_1159(kind: EventKind, duration_s: f64, level_pct: f64, frequency_hz:
 /// D: 40 > u >= 5, X: 5 > u), columns by duration t (1: 10 ms <= t <= 200 ms,
 /// 2: <= 500 ms, 3: <= 1 s, 4: <= 5 s, 5: <= 60 s). Swells: rows S (u >= 120),
 /// T (120 > u > 110), columns 1: 10 .. 500 ms, 2: <= 5 s, 3: <= 60 s.
-pub fn en_50160(kind: EventKind, duration_s: f64, level_pct: f64) -> String {
+pub fn en_50160(kind: DisturbanceKind, duration_s: f64, level_pct: f64) -> String {
     if duration_s < 0.010 {
         return "shorter than the table (10 ms)".into();
     }
@@ -71,7 +76,7 @@ pub fn en_50160(kind: EventKind, duration_s: f64, level_pct: f64) -> String {
         return "longer than the table (60 s)".into();
     }
     match kind {
-        EventKind::Dip | EventKind::Interruption => {
+        DisturbanceKind::Dip | DisturbanceKind::Interruption => {
             let row = if level_pct >= 90.0 {
                 return "residual at or above 90% (not in the table)".into();
             } else if level_pct >= 80.0 {
@@ -91,7 +96,7 @@ pub fn en_50160(kind: EventKind, duration_s: f64, level_pct: f64) -> String {
                 .map_or(5, |i| i + 1);
             format!("{row}{column}")
         }
-        EventKind::Swell => {
+        DisturbanceKind::Swell => {
             let row = if level_pct >= 120.0 {
                 'S'
             } else if level_pct > 110.0 {

@@ -11,7 +11,7 @@ fn first_sample_at(x: f64) -> u64 {
 
 /// An event being followed.
 struct Open {
-    kind: EventKind,
+    kind: DisturbanceKind,
     start_s: f64,
     extreme: f64,
     /// Point-on-wave start (sample position) and the departure levels it was found with.
@@ -366,9 +366,9 @@ impl Detector {
         match &mut self.open {
             None => {
                 let kind = if u < t.dip_pct {
-                    EventKind::Dip
+                    DisturbanceKind::Dip
                 } else if u > t.swell_pct {
-                    EventKind::Swell
+                    DisturbanceKind::Swell
                 } else {
                     return;
                 };
@@ -382,7 +382,7 @@ impl Detector {
             }
             Some(open) => {
                 let ended = match open.kind {
-                    EventKind::Swell => {
+                    DisturbanceKind::Swell => {
                         open.extreme = open.extreme.max(u);
                         u <= t.swell_pct - t.hysteresis_pct
                     }
@@ -402,9 +402,10 @@ impl Detector {
         let Some(open) = self.open.take() else {
             return;
         };
-        let kind = if open.kind == EventKind::Dip && open.extreme < self.thresholds.interruption_pct
+        let kind = if open.kind == DisturbanceKind::Dip
+            && open.extreme < self.thresholds.interruption_pct
         {
-            EventKind::Interruption
+            DisturbanceKind::Interruption
         } else {
             open.kind
         };

@@ -68,10 +68,11 @@ impl Default for Thresholds {
     }
 }
 
-/// The kind of a detected event.
+/// The kind of a detected supply disturbance (not to be confused with the engine's discrete
+/// [`crate::engine::EventKind`]: a relay's pick-up, a switch's change).
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "kebab-case")]
-pub enum EventKind {
+pub enum DisturbanceKind {
     /// Urms(1/2) below the dip threshold.
     Dip,
     /// A dip whose residual fell below the interruption threshold.
@@ -80,13 +81,13 @@ pub enum EventKind {
     Swell,
 }
 
-impl EventKind {
+impl DisturbanceKind {
     /// The name reports use (the same as in JSON): `dip`, `interruption` or `swell`.
     pub fn name(self) -> &'static str {
         match self {
-            EventKind::Dip => "dip",
-            EventKind::Interruption => "interruption",
-            EventKind::Swell => "swell",
+            DisturbanceKind::Dip => "dip",
+            DisturbanceKind::Interruption => "interruption",
+            DisturbanceKind::Swell => "swell",
         }
     }
 }
@@ -95,7 +96,7 @@ impl EventKind {
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct Event {
     /// Kind.
-    pub kind: EventKind,
+    pub kind: DisturbanceKind,
     /// Start: the end of the first Urms(1/2) window past the threshold, seconds.
     pub start_s: f64,
     /// From start to the end of the first window back past the threshold and hysteresis.
@@ -178,7 +179,11 @@ mod tests {
 
     #[test]
     fn kind_names_match_the_json() {
-        for k in [EventKind::Dip, EventKind::Interruption, EventKind::Swell] {
+        for k in [
+            DisturbanceKind::Dip,
+            DisturbanceKind::Interruption,
+            DisturbanceKind::Swell,
+        ] {
             assert_eq!(serde_json::to_value(k).unwrap(), k.name());
         }
     }
@@ -186,36 +191,42 @@ mod tests {
     #[test]
     fn en_50160_cells() {
         // EN 50160:2010 dip table (published).
-        assert_eq!(en_50160(EventKind::Dip, 0.1, 85.0), "A1");
-        assert_eq!(en_50160(EventKind::Dip, 0.3, 75.0), "B2");
-        assert_eq!(en_50160(EventKind::Dip, 0.7, 50.0), "C3");
-        assert_eq!(en_50160(EventKind::Dip, 2.0, 20.0), "D4");
-        assert_eq!(en_50160(EventKind::Interruption, 10.0, 1.0), "X5");
-        assert_eq!(en_50160(EventKind::Swell, 0.2, 125.0), "S1");
-        assert_eq!(en_50160(EventKind::Swell, 3.0, 115.0), "T2");
+        assert_eq!(en_50160(DisturbanceKind::Dip, 0.1, 85.0), "A1");
+        assert_eq!(en_50160(DisturbanceKind::Dip, 0.3, 75.0), "B2");
+        assert_eq!(en_50160(DisturbanceKind::Dip, 0.7, 50.0), "C3");
+        assert_eq!(en_50160(DisturbanceKind::Dip, 2.0, 20.0), "D4");
+        assert_eq!(en_50160(DisturbanceKind::Interruption, 10.0, 1.0), "X5");
+        assert_eq!(en_50160(DisturbanceKind::Swell, 0.2, 125.0), "S1");
+        assert_eq!(en_50160(DisturbanceKind::Swell, 3.0, 115.0), "T2");
     }
 
     #[test]
     fn ieee_1159_categories() {
         // IEEE 1159-2009 Table 2 (published).
         assert_eq!(
-            ieee_1159(EventKind::Dip, 0.2, 40.0, 50.0),
+            ieee_1159(DisturbanceKind::Dip, 0.2, 40.0, 50.0),
             "instantaneous sag"
         );
-        assert_eq!(ieee_1159(EventKind::Dip, 1.0, 40.0, 50.0), "momentary sag");
-        assert_eq!(ieee_1159(EventKind::Dip, 10.0, 40.0, 50.0), "temporary sag");
         assert_eq!(
-            ieee_1159(EventKind::Interruption, 1.0, 2.0, 50.0),
+            ieee_1159(DisturbanceKind::Dip, 1.0, 40.0, 50.0),
+            "momentary sag"
+        );
+        assert_eq!(
+            ieee_1159(DisturbanceKind::Dip, 10.0, 40.0, 50.0),
+            "temporary sag"
+        );
+        assert_eq!(
+            ieee_1159(DisturbanceKind::Interruption, 1.0, 2.0, 50.0),
             "momentary interruption"
         );
         assert_eq!(
-            ieee_1159(EventKind::Interruption, 10.0, 2.0, 50.0),
+            ieee_1159(DisturbanceKind::Interruption, 10.0, 2.0, 50.0),
             "temporary interruption"
         );
         assert_eq!(
-            ieee_1159(EventKind::Swell, 0.2, 130.0, 50.0),
+            ieee_1159(DisturbanceKind::Swell, 0.2, 130.0, 50.0),
             "instantaneous swell"
         );
-        assert!(ieee_1159(EventKind::Swell, 1.0, 150.0, 50.0).contains("outside"));
+        assert!(ieee_1159(DisturbanceKind::Swell, 1.0, 150.0, 50.0).contains("outside"));
     }
 }

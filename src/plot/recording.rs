@@ -65,7 +65,7 @@ fn draw_urms_panel<DB: DrawingBackend>(
     p: &RecordingPlot<'_>,
     y_max: f64,
 ) -> Result<(), PlotError> {
-    use crate::detect::EventKind as K;
+    use crate::detect::DisturbanceKind as K;
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
     // Urms(1/2) over time.
     let points: Vec<(f64, f64)> = p

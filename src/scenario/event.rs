@@ -181,7 +181,7 @@ impl Settled {
                 .iter()
                 .map(|&(a, b)| (onset_s + a, onset_s + b))
                 .collect(),
-            relay_part: relay.unwrap_or(usize::MAX),
+            relay_part: relay,
             closed_at_onset: pre_event_relay.is_some_and(|r| r.normally_open_closed),
         };
         let measurements = measure(&trace.events, &window);

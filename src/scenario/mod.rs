@@ -130,11 +130,20 @@ fn names(circuit: &Circuit, parts: &[usize]) -> String {
         .join(", ")
 }
 
+/// A nominal supply: its RMS voltage and frequency.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Nominal {
+    /// RMS voltage, volts.
+    pub rms_v: f64,
+    /// Frequency, hertz.
+    pub frequency_hz: f64,
+}
+
 /// Options of an event run.
 #[derive(Clone, Debug)]
 pub struct EventOptions {
-    /// Override of the nominal RMS voltage and frequency.
-    pub nominal: Option<(f64, f64)>,
+    /// Override of the mains source's nominal RMS voltage and frequency.
+    pub nominal: Option<Nominal>,
     /// Name of the mains source part (default: the only sine voltage source).
     pub mains: Option<String>,
     /// Name of the relay switching the load (default: the only relay).

@@ -91,7 +91,11 @@ pub fn derived_limit_s(circuit: &Circuit) -> f64 {
 /// Powers `circuit` up on its nominal supply until it has settled.
 pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, ScenarioError> {
     let mains = find_mains(circuit, options.mains.as_deref())?;
-    let (rms, frequency_hz) = options.nominal.unwrap_or((mains.rms, mains.frequency_hz));
+    let (rms, frequency_hz) = options
+        .nominal
+        .map_or((mains.rms, mains.frequency_hz), |n| {
+            (n.rms_v, n.frequency_hz)
+        });
     let relay = find_relay(circuit, options.relay.as_deref())?.ok_or(ScenarioError::NoRelay)?;
     let relays = relay_parts(circuit);
     let rail = find_rail(circuit, options.rail.as_deref())?;

@@ -655,6 +655,26 @@ pub fn run_points(
         .collect()
 }
 
+/// One share of a study split over several machines: share `index` (1-based) of `count`.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct Shard {
+    /// Which share, from 1.
+    pub index: usize,
+    /// How many shares.
+    pub count: usize,
+}
+
+impl Shard {
+    /// The whole study, unsplit.
+    pub const WHOLE: Shard = Shard { index: 1, count: 1 };
+}
+
+impl std::fmt::Display for Shard {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "{}/{}", self.index, self.count)
+    }
+}
+
 /// The share `k` (1-based) of `n` of a list: every `n`-th item starting at `k - 1`. The same
 /// grid always splits the same way.
 pub fn shard<T: Clone>(items: &[T], k: usize, n: usize) -> Vec<T> {

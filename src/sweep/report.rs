@@ -27,7 +27,7 @@ pub struct Report<'a> {
     /// The level boundary's resolution, percent.
     pub resolution_pct: f64,
     /// The shard, (K, N).
-    pub shard: (usize, usize),
+    pub shard: super::Shard,
     /// Wall time, seconds.
     pub wall_s: f64,
     /// Wall time of the one power-up all points share.
@@ -91,7 +91,7 @@ impl<'a> Report<'a> {
             "circuit": r.name,
             "title": r.title,
             "frequency_hz": r.frequency_hz,
-            "shard": format!("{}/{}", r.shard.0, r.shard.1),
+            "shard": r.shard.to_string(),
             "points": s.points,
             "cells": s.cells,
             "dip_boundary": s.dips,
@@ -141,8 +141,8 @@ impl<'a> Report<'a> {
             r.grid.levels_pct.len(),
             r.grid.durations_s.len(),
             r.grid.phases_deg.len(),
-            if r.shard.1 > 1 {
-                format!(", shard {} of {}", r.shard.0, r.shard.1)
+            if r.shard.count > 1 {
+                format!(", shard {} of {}", r.shard.index, r.shard.count)
             } else {
                 String::new()
             },

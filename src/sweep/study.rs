@@ -8,7 +8,7 @@ use crate::scenario::Settled;
 use super::journal::{Contents, Journal};
 use super::{
     refine_boundary, refine_duration_boundary, run_points, shard, BoundaryPoint,
-    DurationBoundaryPoint, Grid, Point,
+    DurationBoundaryPoint, Grid, Point, Shard,
 };
 
 /// What a study runs.
@@ -21,7 +21,7 @@ pub struct StudySettings {
     /// Whether to refine the boundaries (level and duration) after the points.
     pub refine: bool,
     /// This run's share of the study: (K, N), the K-th of N (1-based).
-    pub shard: (usize, usize),
+    pub shard: Shard,
     /// Rise and fall time of the events' edges, seconds.
     pub edge_s: f64,
 }
@@ -51,7 +51,7 @@ impl StudySettings {
             "phases_deg": self.grid.phases_deg,
             "resolution_pct": self.resolution_pct,
             "refine": self.refine,
-            "shard": format!("{}/{}", self.shard.0, self.shard.1),
+            "shard": self.shard.to_string(),
         })
     }
 }
@@ -112,7 +112,7 @@ pub fn run_study(
     progress: &dyn crate::progress::Progress,
 ) -> Result<StudyResult, StudyError> {
     let grid = &settings.grid;
-    let (k, n) = settings.shard;
+    let Shard { index: k, count: n } = settings.shard;
     let todo: Vec<(f64, f64, f64)> = shard(&grid.points(), k, n)
         .into_iter()
         .filter(|&(l, d, p)| {
