@@ -157,45 +157,6 @@ impl PartSpec {
             PartSpec::Timer(_) => "timer",
         }
     }
-
-    /// Pin names in order.
-    pub fn pin_names(&self) -> &'static [&'static str] {
-        pin_names_of(self.kind_name()).unwrap_or(&[])
-    }
-}
-
-/// Pin names of a part kind, in order, or `None` for an unknown kind.
-pub fn pin_names_of(kind: &str) -> Option<&'static [&'static str]> {
-    Some(match kind {
-        "resistor" | "capacitor" | "inductor" => &["a", "b"],
-        "transformer" => &["primary_a", "primary_b", "secondary_a", "secondary_b"],
-        "voltage-source" => &["plus", "minus"],
-        "current-source" => &["from", "to"],
-        "diode" | "led" => &["anode", "cathode"],
-        "bridge" => &["ac_a", "ac_b", "dc_plus", "dc_minus"],
-        "switch" => &["a", "b", "control_plus", "control_minus"],
-        "comparator" => &["plus", "minus", "output", "supply_plus", "supply_minus"],
-        "nmos" | "pmos" => &["drain", "gate", "source"],
-        "npn" | "pnp" => &["collector", "base", "emitter"],
-        "regulator" => &["input", "output", "common"],
-        "relay" => &[
-            "coil_a",
-            "coil_b",
-            "common",
-            "normally_open",
-            "normally_closed",
-        ],
-        "timer" => &[
-            "supply_plus",
-            "supply_minus",
-            "trigger",
-            "threshold",
-            "reset",
-            "output",
-            "discharge",
-        ],
-        _ => return None,
-    })
 }
 
 /// Coupled windings: primary between pins 0-1, secondary between pins 2-3; the `_a` pins

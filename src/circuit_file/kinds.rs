@@ -256,70 +256,205 @@ pub(super) const STEP_FIELDS: &[Field] = &[
     field("at", Quantity::Time, Rule::NonNegative),
 ];
 
-/// The parameter fields of a part kind (sources have waveform tables instead).
-pub(super) fn fields_of(kind: &str) -> &'static [Field] {
-    match kind {
-        "resistor" => RESISTOR_FIELDS,
-        "capacitor" => CAPACITOR_FIELDS,
-        "inductor" => INDUCTOR_FIELDS,
-        "transformer" => TRANSFORMER_FIELDS,
-        "diode" | "bridge" => DIODE_FIELDS,
-        "led" => LED_FIELDS,
-        "switch" => SWITCH_FIELDS,
-        "comparator" => COMPARATOR_FIELDS,
-        "nmos" | "pmos" => MOSFET_FIELDS,
-        "npn" | "pnp" => BIPOLAR_FIELDS,
-        "regulator" => REGULATOR_FIELDS,
-        "relay" => RELAY_FIELDS,
-        "timer" => TIMER_FIELDS,
-        _ => &[],
+/// Which of the reader's builders makes a kind's model specification from its values.
+#[derive(Clone, Copy)]
+pub(super) enum Build {
+    /// `Reader::passive_spec`: resistors, capacitors, inductors, transformers, sources.
+    Passive,
+    /// `Reader::semiconductor_spec`: diodes, bridges, LEDs, MOSFETs, bipolar transistors.
+    Semiconductor,
+    /// `Reader::control_spec`: switches, comparators, regulators, relays, timers.
+    Control,
+}
+
+/// Everything the file format knows about one part kind, in one place: its name, its pins in
+/// order, its parameter fields (sources have waveform tables instead), the parameter-set
+/// family it may draw on, and how its model specification is built.
+pub(super) struct Kind {
+    pub(super) name: &'static str,
+    pub(super) pins: &'static [&'static str],
+    pub(super) fields: &'static [Field],
+    pub(super) set_family: Option<&'static str>,
+    pub(super) build: Build,
+}
+
+/// Every part kind, in the order the messages list them.
+pub(super) const KINDS: &[Kind] = &[
+    Kind {
+        name: "resistor",
+        pins: &["a", "b"],
+        fields: RESISTOR_FIELDS,
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "capacitor",
+        pins: &["a", "b"],
+        fields: CAPACITOR_FIELDS,
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "inductor",
+        pins: &["a", "b"],
+        fields: INDUCTOR_FIELDS,
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "transformer",
+        pins: &["primary_a", "primary_b", "secondary_a", "secondary_b"],
+        fields: TRANSFORMER_FIELDS,
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "voltage-source",
+        pins: &["plus", "minus"],
+        fields: &[],
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "current-source",
+        pins: &["from", "to"],
+        fields: &[],
+        set_family: None,
+        build: Build::Passive,
+    },
+    Kind {
+        name: "diode",
+        pins: &["anode", "cathode"],
+        fields: DIODE_FIELDS,
+        set_family: Some("diode"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "led",
+        pins: &["anode", "cathode"],
+        fields: LED_FIELDS,
+        set_family: Some("led"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "bridge",
+        pins: &["ac_a", "ac_b", "dc_plus", "dc_minus"],
+        fields: DIODE_FIELDS,
+        set_family: Some("diode"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "switch",
+        pins: &["a", "b", "control_plus", "control_minus"],
+        fields: SWITCH_FIELDS,
+        set_family: Some("switch"),
+        build: Build::Control,
+    },
+    Kind {
+        name: "comparator",
+        pins: &["plus", "minus", "output", "supply_plus", "supply_minus"],
+        fields: COMPARATOR_FIELDS,
+        set_family: Some("comparator"),
+        build: Build::Control,
+    },
+    Kind {
+        name: "nmos",
+        pins: &["drain", "gate", "source"],
+        fields: MOSFET_FIELDS,
+        set_family: Some("nmos"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "pmos",
+        pins: &["drain", "gate", "source"],
+        fields: MOSFET_FIELDS,
+        set_family: Some("pmos"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "npn",
+        pins: &["collector", "base", "emitter"],
+        fields: BIPOLAR_FIELDS,
+        set_family: Some("npn"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "pnp",
+        pins: &["collector", "base", "emitter"],
+        fields: BIPOLAR_FIELDS,
+        set_family: Some("pnp"),
+        build: Build::Semiconductor,
+    },
+    Kind {
+        name: "regulator",
+        pins: &["input", "output", "common"],
+        fields: REGULATOR_FIELDS,
+        set_family: Some("regulator"),
+        build: Build::Control,
+    },
+    Kind {
+        name: "relay",
+        pins: &[
+            "coil_a",
+            "coil_b",
+            "common",
+            "normally_open",
+            "normally_closed",
+        ],
+        fields: RELAY_FIELDS,
+        set_family: Some("relay"),
+        build: Build::Control,
+    },
+    Kind {
+        name: "timer",
+        pins: &[
+            "supply_plus",
+            "supply_minus",
+            "trigger",
+            "threshold",
+            "reset",
+            "output",
+            "discharge",
+        ],
+        fields: TIMER_FIELDS,
+        set_family: Some("timer"),
+        build: Build::Control,
+    },
+];
+
+/// The part kind of this name.
+pub(super) fn kind_named(name: &str) -> Option<&'static Kind> {
+    KINDS.iter().find(|k| k.name == name)
+}
+
+/// The names of every part kind, for messages.
+pub(super) fn kind_names() -> Vec<&'static str> {
+    KINDS.iter().map(|k| k.name).collect()
+}
+
+/// The parameter-set families, in the order of the kinds that use them.
+pub(super) fn set_families() -> Vec<&'static str> {
+    let mut families: Vec<&'static str> = Vec::new();
+    for family in KINDS.iter().filter_map(|k| k.set_family) {
+        if !families.contains(&family) {
+            families.push(family);
+        }
     }
+    families
+}
+
+/// The parameter fields of a part kind or parameter-set family (a family has the fields of
+/// the kind of its name); none for an unknown name.
+pub(super) fn fields_of(name: &str) -> &'static [Field] {
+    kind_named(name).map_or(&[], |k| k.fields)
 }
 
 /// The parameter-set family a part kind draws on, if it may use one.
 pub(super) fn family_of(kind: &str) -> Option<&'static str> {
-    match kind {
-        "diode" | "bridge" => Some("diode"),
-        "led" => Some("led"),
-        "switch" => Some("switch"),
-        "comparator" | "nmos" | "pmos" | "npn" | "pnp" | "regulator" | "relay" | "timer" => {
-            PART_KINDS.iter().find(|k| **k == kind).copied()
-        }
-        _ => None,
-    }
+    kind_named(kind).and_then(|k| k.set_family)
 }
 
-pub(super) const PART_KINDS: &[&str] = &[
-    "resistor",
-    "capacitor",
-    "inductor",
-    "transformer",
-    "voltage-source",
-    "current-source",
-    "diode",
-    "led",
-    "bridge",
-    "switch",
-    "comparator",
-    "nmos",
-    "pmos",
-    "npn",
-    "pnp",
-    "regulator",
-    "relay",
-    "timer",
-];
-
-pub(super) const SET_FAMILIES: &[&str] = &[
-    "diode",
-    "led",
-    "switch",
-    "comparator",
-    "nmos",
-    "pmos",
-    "npn",
-    "pnp",
-    "regulator",
-    "relay",
-    "timer",
-];
+/// The pin names of a part kind, in order (empty for an unknown kind).
+pub fn pin_names(kind: &str) -> &'static [&'static str] {
+    kind_named(kind).map_or(&[], |k| k.pins)
+}

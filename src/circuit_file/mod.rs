@@ -5,9 +5,9 @@
 //! file concerns. The format is specified in `docs/circuit-format.md`.
 
 use crate::circuit::{
-    pin_names_of, BipolarParams, Breakdown, Circuit, ComparatorParams, DiodeParams, MosfetParams,
-    NodeId, ParameterSetInfo, Part, PartSpec, RegulatorParams, RelayParams, SwitchParams,
-    TimerParams, Tolerance, TransformerParams, GROUND, THERMAL_VOLTAGE,
+    BipolarParams, Breakdown, Circuit, ComparatorParams, DiodeParams, MosfetParams, NodeId,
+    ParameterSetInfo, Part, PartSpec, RegulatorParams, RelayParams, SwitchParams, TimerParams,
+    Tolerance, TransformerParams, GROUND, THERMAL_VOLTAGE,
 };
 use crate::units::{parse_value, Quantity};
 use crate::waveform::Waveform;
@@ -22,6 +22,7 @@ mod parts;
 mod reader;
 mod topology;
 mod values;
+pub use kinds::pin_names;
 use kinds::*;
 use reader::*;
 

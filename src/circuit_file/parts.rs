@@ -19,12 +19,15 @@ impl Reader<'_> {
         let problems_before = self.problems.len();
         let kind = match table.get("kind") {
             Some(v) => match v.get_ref().as_str() {
-                Some(k) if PART_KINDS.contains(&k) => k.to_string(),
+                Some(k) if kind_named(k).is_some() => k.to_string(),
                 Some(k) => {
                     self.problem(
                         v.span(),
                         &format!("{path}.kind"),
-                        format!("unknown part kind `{k}` (known: {})", PART_KINDS.join(", ")),
+                        format!(
+                            "unknown part kind `{k}` (known: {})",
+                            kind_names().join(", ")
+                        ),
                     );
                     return None;
                 }
@@ -37,7 +40,7 @@ impl Reader<'_> {
                 self.problem(
                     name.span(),
                     &path,
-                    format!("missing `kind` (one of {})", PART_KINDS.join(", ")),
+                    format!("missing `kind` (one of {})", kind_names().join(", ")),
                 );
                 return None;
             }
@@ -120,7 +123,7 @@ impl Reader<'_> {
         nodes: &mut Vec<String>,
         problems_before: usize,
     ) -> Vec<Option<(NodeId, Range<usize>)>> {
-        let pin_names = pin_names_of(kind).unwrap_or(&[]);
+        let pin_names = pin_names(kind);
         let mut pins: Vec<Option<(NodeId, Range<usize>)>> = vec![None; pin_names.len()];
         match pins_value {
             None => self.problem(
@@ -410,16 +413,12 @@ impl Reader<'_> {
             );
             return None;
         }
-        let family = match kind {
-            "resistor" | "capacitor" | "inductor" | "transformer" | "voltage-source"
-            | "current-source" => Self::passive_spec,
-            "diode" | "bridge" | "led" | "nmos" | "pmos" | "npn" | "pnp" => {
-                Self::semiconductor_spec
-            }
-            "switch" | "comparator" | "regulator" | "relay" | "timer" => Self::control_spec,
-            _ => return None,
+        let build = match kind_named(kind)?.build {
+            Build::Passive => Self::passive_spec,
+            Build::Semiconductor => Self::semiconductor_spec,
+            Build::Control => Self::control_spec,
         };
-        family(self, kind, values, fields, waveform, name_span, path)
+        build(self, kind, values, fields, waveform, name_span, path)
     }
 
     /// The model specification of a part of this family: resistors, capacitors, inductors, transformers and sources. `None` (with the problem

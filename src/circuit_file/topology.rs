@@ -122,10 +122,10 @@ impl Reader<'_> {
                 let part = &parts[pi];
                 self.problem(
                     origins[pi].pin_spans[k].clone(),
-                    &format!("part.{}.pins.{}", part.name, part.spec.pin_names()[k]),
+                    &format!("part.{}.pins.{}", part.name, pin_names(part.spec.kind_name())[k]),
                     format!(
                         "node `{}` has only one connection (pin {} of `{}`); connect it to something else or remove it",
-                        nodes[node], part.spec.pin_names()[k], part.name
+                        nodes[node], pin_names(part.spec.kind_name())[k], part.name
                     ),
                 );
             }

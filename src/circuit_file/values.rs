@@ -268,13 +268,13 @@ impl Reader<'_> {
         };
         let family = match table.get("kind").map(|v| (v.get_ref().as_str(), v.span())) {
             Some((Some(k), span)) => {
-                if !SET_FAMILIES.contains(&k) {
+                if !set_families().contains(&k) {
                     self.problem(
                         span,
                         &format!("{path}.kind"),
                         format!(
                             "unknown parameter-set kind `{k}` (known: {})",
-                            SET_FAMILIES.join(", ")
+                            set_families().join(", ")
                         ),
                     );
                     return None;
@@ -289,7 +289,7 @@ impl Reader<'_> {
                 self.problem(
                     name.span(),
                     &path,
-                    format!("missing `kind` (one of {})", SET_FAMILIES.join(", ")),
+                    format!("missing `kind` (one of {})", set_families().join(", ")),
                 );
                 return None;
             }

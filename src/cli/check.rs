@@ -86,9 +86,7 @@ pub(crate) fn check(path: Option<&Path>) -> Outcome {
     }
     say!(out, "\nparts ({}):", circuit.parts.len());
     for part in &circuit.parts {
-        let pins: Vec<String> = part
-            .spec
-            .pin_names()
+        let pins: Vec<String> = sagtrip::circuit_file::pin_names(part.spec.kind_name())
             .iter()
             .zip(&part.pins)
             .filter(|(pin, _)| {
