@@ -1246,3 +1246,60 @@ fn nonsense_thresholds_scales_harmonics_and_phases_are_refused() {
         assert!(err.contains(expected), "{args:?}: {err}");
     }
 }
+
+#[test]
+fn events_that_last_no_time_are_refused() {
+    // A step of no duration, or shorter than the edge the supply takes to reach its level,
+    // makes no event: refused before any simulation, naming the step (common practice: a
+    // test generator's dip is at least its rise and fall long).
+    let nan_phase = temp_path("nan-phase.toml");
+    std::fs::write(
+        &nan_phase,
+        "phase = \"nan\"\n[[event]]\nkind = \"dip\"\nresidual = \"40%\"\nduration = \"10cyc\"\n",
+    )
+    .unwrap();
+    let zero = temp_path("zero-gap.toml");
+    std::fs::write(
+        &zero,
+        "[[event]]\nkind = \"interrupt\"\nduration = \"10cyc\"\n\
+         [[event]]\nkind = \"gap\"\nduration = \"0s\"\n\
+         [[event]]\nkind = \"dip\"\nresidual = \"40%\"\nduration = \"5cyc\"\n",
+    )
+    .unwrap();
+    let w = temp_path("no-time.wav");
+    for (args, expected) in [
+        (vec!["run", "--event", "dip:40%:0cyc"], "step 1 (`dip:40%:0cyc`) lasts no time"),
+        (vec!["run", "--event", "swell:120%:0s"], "lasts no time"),
+        (vec!["run", "--event", "dip:40%:1e-9s"], "shorter than the 5e-6 s edge"),
+        (
+            vec!["run", "--event", "interrupt:10cyc;gap:0s;dip:40%:5cyc"],
+            "step 2 (`gap:0ms`) lasts no time",
+        ),
+        (
+            vec!["run", "--event", "dip:40%:1ms", "--edge", "5ms"],
+            "shorter than the 5e-3 s edge",
+        ),
+        (
+            vec!["run", "--event-file", zero.to_str().unwrap()],
+            "step 2 (`gap:0ms`) lasts no time",
+        ),
+        (
+            vec!["run", "--event-file", nan_phase.to_str().unwrap()],
+            "not a phase angle",
+        ),
+        (
+            vec!["synth", "dip:40%:0cyc", "--out", w.to_str().unwrap()],
+            "lasts no time",
+        ),
+        (
+            vec!["sweep", "--durations", "1e-12s:1e-11s"],
+            "the shortest event lasts at least",
+        ),
+    ] {
+        let out = sagtrip(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+    assert!(!w.exists(), "no recording is written for a refused event");
+}

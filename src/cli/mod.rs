@@ -89,7 +89,9 @@ pub(crate) fn scenario_failure(name: &str, e: sagtrip::scenario::ScenarioError) 
             Failure::Run(format!("{name}: {e} (raise it with --power-up-limit)"))
         }
         E::Simulation(_) => Failure::Run(format!("{name}: {e}")),
-        E::NoMains(_) | E::Unknown(_) | E::NoRelay => Failure::Input(format!("{name}: {e}")),
+        E::NoMains(_) | E::Unknown(_) | E::NoRelay | E::Profile(_) => {
+            Failure::Input(format!("{name}: {e}"))
+        }
     }
 }
 

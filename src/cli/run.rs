@@ -227,6 +227,13 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
         }
     };
 
+    let what = match &args.event_file {
+        Some(path) => path.display().to_string(),
+        None => "--event".to_string(),
+    };
+    profile
+        .check(frequency)
+        .map_err(|e| format!("{what}: {e}"))?;
     let started = Instant::now();
     let result = run_event(&circuit, &profile, &options).map_err(|e| scenario_failure(&name, e))?;
     let wall = started.elapsed().as_secs_f64();

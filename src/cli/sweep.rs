@@ -284,6 +284,14 @@ fn durations(args: &SweepArgs, frequency: f64) -> Result<Vec<f64>, Failure> {
     if first <= 0.0 || last < first || args.duration_count == 0 {
         return Err("--durations: need 0 < SHORTEST <= LONGEST and a positive count".into());
     }
+    if first < DEFAULT_EDGE_S {
+        return Err(format!(
+            "--durations {}: the shortest event lasts at least the {DEFAULT_EDGE_S:e} s edge the \
+             supply takes to reach its level",
+            args.durations
+        )
+        .into());
+    }
     Ok(sagtrip::sweep::log_durations(
         first,
         last,

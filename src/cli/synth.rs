@@ -54,6 +54,9 @@ pub(crate) fn synth(args: &SynthArgs) -> Outcome {
     let (rms, frequency) = nominal_option(&args.nominal)?;
     let edge = time_option(args.edge.as_deref(), "edge")?.unwrap_or(DEFAULT_EDGE_S);
     let profile = resolve(&args.spec, frequency, edge).map_err(|e| format!("event: {e}"))?;
+    profile
+        .check(frequency)
+        .map_err(|e| format!("event: {e}"))?;
     if args.rate < 1000 {
         return Err(format!("--rate {}: at least 1000 samples per second", args.rate).into());
     }

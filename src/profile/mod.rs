@@ -128,6 +128,88 @@ pub struct Profile {
     pub edge_s: f64,
 }
 
+/// A step whose duration makes no event: zero, or too short to reach its level through the
+/// edges.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum ProfileError {
+    /// A step lasts no time at all.
+    #[error("step {step} (`{spec}`) lasts no time: give a duration above 0")]
+    Empty {
+        /// The step, counted from 1.
+        step: usize,
+        /// The step in the compact form.
+        spec: String,
+    },
+    /// A step is shorter than the edge the supply takes to reach its level, so the level is
+    /// never reached.
+    #[error(
+        "step {step} (`{spec}`) lasts {duration_s:e} s, shorter than the {edge_s:e} s edge the \
+         supply takes to reach its level: lengthen it or shorten the edge"
+    )]
+    ShorterThanEdge {
+        /// The step, counted from 1.
+        step: usize,
+        /// The step in the compact form.
+        spec: String,
+        /// Its duration, seconds.
+        duration_s: f64,
+        /// The edge time, seconds.
+        edge_s: f64,
+    },
+}
+
+impl Profile {
+    /// Checks that every step is an event: a dip, interruption, swell or ramp lasts longer
+    /// than 0 and at least one edge time (so its level is reached); a gap lasts longer than 0;
+    /// a variation's three times add up to more than 0. `frequency_hz` converts cycles.
+    pub fn check(&self, frequency_hz: f64) -> Result<(), ProfileError> {
+        for (k, step) in self.steps.iter().enumerate() {
+            let spec = || {
+                Profile {
+                    steps: vec![step.clone()],
+                    phase_deg: 0.0,
+                    edge_s: self.edge_s,
+                }
+                .spec()
+            };
+            let (duration_s, needs_edge) = match step {
+                Step::Dip { duration, .. } | Step::Swell { duration, .. } => {
+                    (duration.seconds(frequency_hz), true)
+                }
+                Step::Ramp { duration, .. } | Step::Gap { duration } => {
+                    (duration.seconds(frequency_hz), false)
+                }
+                Step::Variation {
+                    decrease,
+                    hold,
+                    increase,
+                    ..
+                } => (
+                    decrease.seconds(frequency_hz)
+                        + hold.seconds(frequency_hz)
+                        + increase.seconds(frequency_hz),
+                    false,
+                ),
+            };
+            if duration_s <= 0.0 {
+                return Err(ProfileError::Empty {
+                    step: k + 1,
+                    spec: spec(),
+                });
+            }
+            if needs_edge && duration_s < self.edge_s {
+                return Err(ProfileError::ShorterThanEdge {
+                    step: k + 1,
+                    spec: spec(),
+                    duration_s,
+                    edge_s: self.edge_s,
+                });
+            }
+        }
+        Ok(())
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -181,6 +263,38 @@ mod tests {
         assert!(e.message.contains("first event only"));
         let e = parse_spec("swell:90%:1cyc", DEFAULT_EDGE_S).unwrap_err();
         assert!(e.message.contains("above 100%"));
+    }
+
+    #[test]
+    fn steps_that_make_no_event_are_refused() {
+        // Zero durations in any unit, and a dip shorter than its 5 us edge.
+        for spec in [
+            "dip:40%:0cyc",
+            "swell:120%:0s",
+            "interrupt:10cyc;gap:0s;dip:40%:5cyc",
+            "vary:70%:0cyc/0cyc/0cyc",
+            "ramp:100%-65%:0s",
+        ] {
+            let p = parse_spec(spec, DEFAULT_EDGE_S).unwrap();
+            assert!(
+                matches!(p.check(50.0), Err(ProfileError::Empty { .. })),
+                "{spec}"
+            );
+        }
+        let p = parse_spec("dip:40%:1e-9s", DEFAULT_EDGE_S).unwrap();
+        assert!(matches!(
+            p.check(50.0),
+            Err(ProfileError::ShorterThanEdge { step: 1, .. })
+        ));
+        let p = parse_spec("dip:40%:1ms", 5e-3).unwrap();
+        assert!(p.check(50.0).is_err());
+        // The shortest IEC 61000-4-11 dip, half a cycle, is an event.
+        let p = parse_spec(
+            "dip:0%:0.5cyc;gap:1cyc;vary:70%:0cyc/1cyc/25cyc",
+            DEFAULT_EDGE_S,
+        )
+        .unwrap();
+        assert_eq!(p.check(50.0), Ok(()));
     }
 
     #[test]

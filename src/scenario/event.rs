@@ -118,6 +118,7 @@ impl Settled {
 
     /// Applies `profile` to a copy of the settled protector and measures the response.
     pub fn run(&self, circuit: &Circuit, profile: &Profile) -> Result<EventRun, ScenarioError> {
+        profile.check(self.frequency_hz)?;
         let options = &self.options;
         let mut sim = self.sim.clone();
         let mut state = self.state.clone();

@@ -63,6 +63,9 @@ pub enum ScenarioError {
     /// can be given.
     #[error("the circuit has no relay to switch the load: trips cannot be judged")]
     NoRelay,
+    /// The event has a step that makes no event (no time, or shorter than its edges).
+    #[error(transparent)]
+    Profile(#[from] crate::profile::ProfileError),
     /// The simulation failed.
     #[error(transparent)]
     Simulation(#[from] SimError),

@@ -210,6 +210,9 @@ pub fn parse_plan(text: &str, path: &str, frequency_hz: f64) -> Result<Plan, Pla
         let field = format!("test.{}.event", k + 1);
         let profile = resolve(t.event.get_ref(), frequency_hz, DEFAULT_EDGE_S)
             .map_err(|e| error(t.event.span().start + 1 + e.at, &field, e.message.clone()))?;
+        profile
+            .check(frequency_hz)
+            .map_err(|e| error(t.event.span().start, &field, e.to_string()))?;
         let name = t.name.get_ref().trim();
         if name.is_empty() {
             return Err(error(
