@@ -1268,9 +1268,15 @@ fn events_that_last_no_time_are_refused() {
     .unwrap();
     let w = temp_path("no-time.wav");
     for (args, expected) in [
-        (vec!["run", "--event", "dip:40%:0cyc"], "step 1 (`dip:40%:0cyc`) lasts no time"),
+        (
+            vec!["run", "--event", "dip:40%:0cyc"],
+            "step 1 (`dip:40%:0cyc`) lasts no time",
+        ),
         (vec!["run", "--event", "swell:120%:0s"], "lasts no time"),
-        (vec!["run", "--event", "dip:40%:1e-9s"], "shorter than the 5e-6 s edge"),
+        (
+            vec!["run", "--event", "dip:40%:1e-9s"],
+            "shorter than the 5e-6 s edge",
+        ),
         (
             vec!["run", "--event", "interrupt:10cyc;gap:0s;dip:40%:5cyc"],
             "step 2 (`gap:0ms`) lasts no time",
