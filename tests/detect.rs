@@ -382,3 +382,67 @@ fn the_frequency_leaves_out_cycles_an_event_distorts() {
         assert!((f - 50.0).abs() < 1e-6, "{f}");
     }
 }
+
+#[test]
+fn an_outage_at_the_start_is_an_interruption_and_no_mains_is_refused() {
+    let amplitude = 230.0 * std::f64::consts::SQRT_2;
+    let w = 2.0 * std::f64::consts::PI * 50.0;
+    let rate = f64::from(RATE);
+    // Half a second of outage, then the supply: the interruption starts at the first
+    // Urms(1/2) window (stamped one cycle after the first sample) and lasts the outage's
+    // 500 ms within one half cycle (IEC 61000-4-30:2015 5.4, duration uncertainty; from
+    // memory).
+    let v: Vec<f64> = (0..20_000)
+        .map(|k| {
+            let t = k as f64 / rate;
+            if t < 0.5 {
+                0.0
+            } else {
+                amplitude * (w * t).sin()
+            }
+        })
+        .collect();
+    let d = detect(&v, rate, 230.0, 50.0, Thresholds::default());
+    assert_eq!(d.events.len(), 1, "{:?}", d.events);
+    let e = &d.events[0];
+    assert_eq!(e.kind, DisturbanceKind::Interruption);
+    assert!(e.start_s <= 0.02 + 1e-9, "{}", e.start_s);
+    assert!((e.duration_s - 0.5).abs() <= 0.01 + 1e-9, "{e:?}");
+    assert_eq!(d.check_mains(), Ok(()));
+    // All zero, or DC: no whole cycle anywhere, so no mains to judge.
+    for level in [0.0, 325.0] {
+        let flat = vec![level; 20_000];
+        let d = detect(&flat, rate, 230.0, 50.0, Thresholds::default());
+        assert!(d.check_mains().is_err(), "{level} V");
+    }
+}
+
+#[test]
+fn a_corrupt_sample_is_refused_with_its_place() {
+    // One sample at 1e30 V (a corrupt value, far beyond any mains) in a clean recording.
+    let path =
+        std::env::temp_dir().join(format!("sagtrip-detect-{}-spike.csv", std::process::id()));
+    let mut text = String::from("time_s,voltage_V\n");
+    for k in 0..4000 {
+        let t = k as f64 / 10_000.0;
+        let v = if k == 3000 {
+            1e30
+        } else {
+            325.0 * (2.0 * std::f64::consts::PI * 50.0 * t).sin()
+        };
+        text += &format!("{t},{v}\n");
+    }
+    std::fs::write(&path, text).unwrap();
+    let scaled =
+        sagtrip::recording::open_scaled(&path, 0, &sagtrip::recording::CsvColumns::default(), None)
+            .unwrap();
+    let err = scaled
+        .volts()
+        .collect::<Result<Vec<_>, _>>()
+        .unwrap_err()
+        .to_string();
+    assert!(
+        err.contains("sample 3000") && err.contains("1e30 V"),
+        "{err}"
+    );
+}

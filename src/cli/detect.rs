@@ -72,6 +72,8 @@ pub(crate) fn detect_command(args: &DetectArgs) -> Outcome {
         detector.push(v.map_err(|e| e.to_string())?);
     }
     let d = detector.finish();
+    d.check_mains()
+        .map_err(|e| format!("{}: {e}", args.input.recording.display()))?;
     if let Some(path) = &args.plot {
         let plot = sagtrip::plot::RecordingPlot {
             title: format!("{}: events", args.input.recording.display()),

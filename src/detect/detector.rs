@@ -139,10 +139,19 @@ impl Detector {
         }
     }
 
-    /// The first rising zero crossing in the data.
+    /// The first rising zero crossing in the data. A recording that starts without one
+    /// (an outage, or a supply that has not come on) is timed from its first sample at the
+    /// declared frequency after one and a half cycles without a crossing, so that the outage
+    /// is measured like any other (IEC 61000-4-30 measures Urms(1/2) at the nominal rate
+    /// where no zero crossing is found; from memory).
     fn find_first_crossing(&mut self) {
         let n = self.count;
         if n < 2 {
+            return;
+        }
+        if n as f64 > 3.0 * self.half_period {
+            self.boundaries.push_back(0.0);
+            self.last_rising = true;
             return;
         }
         let (a, b) = (self.sample(n - 2), self.sample(n - 1));

@@ -158,6 +158,30 @@ pub struct Detection {
     pub duration_s: f64,
 }
 
+/// A recording with no mains in it: not one whole cycle of a supply (all zero, or DC).
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error(
+    "no mains in the recording: its {duration_s:.3} s hold not one whole cycle (two rising \
+     zero crossings a cycle apart); is it all zero, or DC?"
+)]
+pub struct NoMains {
+    /// The recording's duration, seconds.
+    pub duration_s: f64,
+}
+
+impl Detection {
+    /// Refuses a recording that holds no mains at all: no whole cycle anywhere.
+    pub fn check_mains(&self) -> Result<(), NoMains> {
+        if self.cycles.is_empty() {
+            Err(NoMains {
+                duration_s: self.duration_s,
+            })
+        } else {
+            Ok(())
+        }
+    }
+}
+
 /// Detects events in a whole signal held in memory (tests and small recordings).
 pub fn detect(
     samples: &[f64],

@@ -51,7 +51,8 @@ impl DetectionReport<'_> {
             "declared_from": self.declared_from,
             "duration_s": d.duration_s,
             "samples": d.samples,
-            "measured_frequency_hz": { "mean": mean, "min": min, "max": max },
+            "measured_frequency_hz": (!self.detection.frequency_intervals().is_empty())
+                .then(|| serde_json::json!({ "mean": mean, "min": min, "max": max })),
             "events": d.events,
         })
     }
@@ -69,9 +70,17 @@ impl DetectionReport<'_> {
             d.duration_s
         );
         say!(out, "scale: {}", self.scale);
+        let measured = if self.detection.frequency_intervals().is_empty() {
+            "measured frequency: no 10 s interval of undisturbed cycles".to_string()
+        } else {
+            format!(
+                "measured frequency {fmean:.3} Hz (10 s intervals from {fmin:.3} to {fmax:.3} Hz, \
+                 cycles near events left out)"
+            )
+        };
         say!(
             out,
-            "declared {} V / {} Hz ({}); measured frequency {fmean:.3} Hz (10 s intervals from {fmin:.3} to {fmax:.3} Hz, cycles near events left out)",
+            "declared {} V / {} Hz ({}); {measured}",
             self.declared_v,
             self.frequency_hz,
             self.declared_from

@@ -20,6 +20,10 @@ use wav::*;
 /// The lowest sample rate accepted, samples per second: 20 samples per 50 Hz cycle.
 pub const MIN_SAMPLE_RATE: f64 = 1000.0;
 
+/// The largest sample magnitude accepted, volts: the bound of a declared supply. A sample
+/// beyond it is corrupt data, not mains.
+pub const MAX_SAMPLE_V: f64 = 1e6;
+
 /// Why a recording cannot be read.
 #[derive(Debug, thiserror::Error)]
 pub enum RecordingError {
@@ -38,6 +42,21 @@ pub enum RecordingError {
         path: String,
         /// What is wrong.
         message: String,
+    },
+    /// A sample, once scaled, is not finite or lies beyond [`MAX_SAMPLE_V`].
+    #[error(
+        "{path}: sample {index} (at {time_s:.6} s) reads {volts:e} V, beyond the {MAX_SAMPLE_V:e} V \
+         any mains recording holds: a corrupt sample, or a wrong scale"
+    )]
+    AbsurdSample {
+        /// The file.
+        path: String,
+        /// 0-based index of the sample.
+        index: usize,
+        /// Its time from the first sample, seconds.
+        time_s: f64,
+        /// Its value once scaled, volts.
+        volts: f64,
     },
     /// A CSV line is not a valid sample.
     #[error("{path}:{line}: {message}")]

@@ -47,16 +47,34 @@ pub struct Scaled {
     pub rate: f64,
     /// What the file is, for the report.
     pub description: String,
+    /// The file, for messages.
+    pub path: String,
 }
 
 impl Scaled {
     /// Every sample in volts.
+    /// Every sample in volts. A sample that is not finite or lies beyond
+    /// [`MAX_SAMPLE_V`] is an error naming it (a corrupt sample, not a supply).
     pub fn volts(self) -> impl Iterator<Item = Result<f64, RecordingError>> {
-        let scale = self.scale;
+        let (scale, rate, path) = (self.scale, self.rate, self.path);
         self.lead
             .into_iter()
-            .map(move |v| Ok(v * scale))
-            .chain(self.rest.map(move |s| s.map(|v| v * scale)))
+            .map(Ok)
+            .chain(self.rest)
+            .enumerate()
+            .map(move |(index, s)| {
+                let v = s? * scale;
+                if v.is_finite() && v.abs() <= MAX_SAMPLE_V {
+                    Ok(v)
+                } else {
+                    Err(RecordingError::AbsurdSample {
+                        path: path.clone(),
+                        index,
+                        time_s: index as f64 / rate,
+                        volts: v,
+                    })
+                }
+            })
     }
 }
 
@@ -125,6 +143,7 @@ pub fn open_scaled(
         how,
         rate,
         description,
+        path: path.display().to_string(),
     })
 }
 
