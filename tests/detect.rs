@@ -394,7 +394,7 @@ fn an_outage_at_the_start_is_an_interruption_and_no_mains_is_refused() {
     // memory).
     let v: Vec<f64> = (0..20_000)
         .map(|k| {
-            let t = k as f64 / rate;
+            let t = f64::from(k) / rate;
             if t < 0.5 {
                 0.0
             } else {
@@ -424,7 +424,7 @@ fn a_corrupt_sample_is_refused_with_its_place() {
         std::env::temp_dir().join(format!("sagtrip-detect-{}-spike.csv", std::process::id()));
     let mut text = String::from("time_s,voltage_V\n");
     for k in 0..4000 {
-        let t = k as f64 / 10_000.0;
+        let t = f64::from(k) / 10_000.0;
         let v = if k == 3000 {
             1e30
         } else {
