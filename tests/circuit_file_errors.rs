@@ -235,3 +235,31 @@ fn a_flag_is_a_toml_boolean() {
         "expected true or false",
     );
 }
+
+#[test]
+fn values_beyond_any_real_part_are_refused_naming_the_part() {
+    // A femtohenry coil, a 1e308 F capacitor or a 1e5-bounce contact would stall or
+    // overflow the engine; the limits are far beyond real parts on both sides (common
+    // practice: 1 fF and 1 pH are parasitic levels, 10 kF the largest supercapacitors).
+    let text = format!(
+        "{GOOD_TAIL}\n[part.c_huge]\nkind = \"capacitor\"\npins = [\"a\", \"gnd\"]\n\
+         capacitance = \"1e308\"\n[part.l_tiny]\nkind = \"inductor\"\npins = [\"a\", \"b\"]\n\
+         inductance = \"1e-18H\"\n[part.r_tiny]\nkind = \"resistor\"\npins = [\"b\", \"gnd\"]\n\
+         resistance = \"1e-300\"\n"
+    );
+    check(&text, 14, "part.c_huge.capacitance", "beyond any real part");
+    check(
+        &text,
+        18,
+        "part.l_tiny.inductance",
+        "allowed from 1e-12 to 1e4 H",
+    );
+    check(&text, 22, "part.r_tiny.resistance", "1e-300 ohm");
+    // Zero stays allowed where the field allows it (a winding without resistance).
+    let zero = format!(
+        "{GOOD_TAIL}\n[part.l]\nkind = \"inductor\"\npins = [\"a\", \"b\"]\n\
+         inductance = \"1mH\"\nseries_resistance = \"0\"\n[part.r_b]\nkind = \"resistor\"\n\
+         pins = [\"b\", \"gnd\"]\nresistance = \"1k\"\n"
+    );
+    common::circuit(&zero);
+}

@@ -420,3 +420,30 @@ fn steps_down_to_the_smallest_allowed_converge() {
     // tolerance, 1 uV.
     assert!((after - before).abs() < 1e-6, "{before} -> {after}");
 }
+
+#[test]
+fn a_run_that_makes_no_progress_stops_and_names_what_moves() {
+    // A bound no run can meet (an average step of a second over the watch window) stands in
+    // for a circuit whose time constants are far shorter than its signals: the run must
+    // stop with the stall error, in bounded time, naming an unknown and its parts.
+    let c = circuit(
+        "[part.v]\nkind = \"voltage-source\"\npins = [\"a\", \"gnd\"]\n\
+         sine = { amplitude = \"10V\", frequency = \"50Hz\" }\n\
+         [part.r]\nkind = \"resistor\"\npins = [\"a\", \"b\"]\nresistance = \"1k\"\n\
+         [part.c]\nkind = \"capacitor\"\npins = [\"b\", \"gnd\"]\ncapacitance = \"1u\"\n",
+    );
+    let stalled = Settings {
+        min_average_step_s: 1.0,
+        max_step_s: 1e-6,
+        ..settings()
+    };
+    let mut sim = Simulator::new(&c, stalled);
+    let mut state = sim.start(Start::Rest).unwrap();
+    let err = sim.advance(&mut state, 10.0, &mut ()).unwrap_err();
+    let SimError::Stalled(stall) = &err else {
+        panic!("{err}");
+    };
+    assert_eq!(stall.passes, sagtrip::engine::STALL_WINDOW);
+    assert!(!stall.involved.is_empty(), "{err}");
+    assert!(err.to_string().contains("stalled"), "{err}");
+}

@@ -346,9 +346,12 @@ impl Reader<'_> {
                     &mut v,
                     &mut order,
                 );
-                for f in fields {
-                    if f.required && !v.contains_key(f.name) {
-                        self.problem(value.span(), &wpath, format!("missing `{}`", f.name));
+                // A field given but refused is already a problem: not also a missing one.
+                if self.problems.len() == before {
+                    for f in fields {
+                        if f.required && !v.contains_key(f.name) {
+                            self.problem(value.span(), &wpath, format!("missing `{}`", f.name));
+                        }
                     }
                 }
                 if self.problems.len() > before {

@@ -245,6 +245,21 @@ impl Reader<'_> {
                 self.problem(value.span(), &field_path, format!("{need}, got {v}"));
                 continue;
             }
+            if let Some((lo, hi)) = plausible(spec.quantity) {
+                if v != 0.0 && !(lo..=hi).contains(&v.abs()) {
+                    let unit = spec.quantity.symbol();
+                    let message = if spec.quantity == Quantity::Count {
+                        format!("{v} is beyond any real part: at most {hi}")
+                    } else {
+                        format!(
+                            "{v:e} {unit} is beyond any real part: the magnitude is allowed from \
+                             {lo:e} to {hi:e} {unit}"
+                        )
+                    };
+                    self.problem(value.span(), &field_path, message);
+                    continue;
+                }
+            }
             order.push(name.to_string());
             out.insert(
                 name.to_string(),
@@ -311,4 +326,21 @@ impl Reader<'_> {
             used_by: Vec::new(),
         })
     }
+}
+
+/// The magnitudes a value of each quantity may take (besides 0 where its rule allows it):
+/// far beyond real parts on both sides, so that only nonsense is refused (a femtohenry coil
+/// or a 1e308 F capacitor would stall the engine or overflow it).
+fn plausible(quantity: Quantity) -> Option<(f64, f64)> {
+    Some(match quantity {
+        Quantity::Voltage => (1e-12, 1e6),
+        Quantity::Current => (1e-30, 1e6),
+        Quantity::Resistance => (1e-9, 1e18),
+        Quantity::Capacitance => (1e-15, 1e4),
+        Quantity::Inductance => (1e-12, 1e4),
+        Quantity::Frequency => (1e-3, 1e9),
+        Quantity::Time => (1e-15, 86_400.0),
+        Quantity::Count => (1.0, 100.0),
+        _ => return None,
+    })
 }

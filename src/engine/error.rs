@@ -25,6 +25,10 @@ pub enum SimError {
         /// The node or part it belongs to.
         owner: String,
     },
+    /// The run made too little progress: many passes of the step loop covered almost no
+    /// simulated time.
+    #[error(transparent)]
+    Stalled(Box<Stall>),
     /// A waveform was given to a part that is not a source.
     #[error("part `{0}` is not a voltage or current source")]
     NotASource(String),
@@ -38,4 +42,36 @@ pub enum SimError {
 pub(crate) enum NewtonFailure {
     Diverged,
     Singular(usize),
+}
+
+/// A run that made too little progress: where, how little, and what moved fastest.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+#[error(
+    "the run stalled at t = {time_s:.9} s: {passes} steps covered only {span_s:.3e} s \
+     (on average {average_s:.3e} s, below the {min_average_s:.0e} s allowed){events}; \
+     fastest-moving: {fastest} (a time constant of about {time_constant_s:.1e} s); \
+     involved: {}. A part value far from any real part (a tiny inductance or \
+     capacitance, a huge bounce count) is the usual cause",
+    involved.join(", "),
+    events = if *events > 0 { format!(", with {events} discrete changes") } else { String::new() }
+)]
+pub struct Stall {
+    /// Where the run stopped, seconds.
+    pub time_s: f64,
+    /// Passes of the step loop in the window judged.
+    pub passes: u64,
+    /// Simulated time they covered, seconds.
+    pub span_s: f64,
+    /// Their average, seconds.
+    pub average_s: f64,
+    /// The smallest average allowed, seconds.
+    pub min_average_s: f64,
+    /// Discrete changes located in the window.
+    pub events: u64,
+    /// The unknown that moved most against its tolerance in the last step.
+    pub fastest: String,
+    /// Its rate of change as a time constant (value over rate), seconds.
+    pub time_constant_s: f64,
+    /// The parts and nodes around it.
+    pub involved: Vec<String>,
 }

@@ -153,6 +153,27 @@ impl Simulator {
     }
 
     /// Turns a Newton failure into an error naming the unknowns, nodes and parts.
+    /// The owners of `unknowns` and the parts attached to those that are nodes.
+    pub(super) fn involved(&self, unknowns: &[usize]) -> Vec<String> {
+        let mut involved: Vec<String> = unknowns
+            .iter()
+            .map(|&i| self.network.unknown_owner(i))
+            .collect();
+        for &i in unknowns {
+            if let UnknownKind::Node(n) = self.network.unknowns[i].1 {
+                for part in &self.network.circuit.parts {
+                    if part.pins.contains(&n) {
+                        let name = format!("part `{}`", part.name);
+                        if !involved.contains(&name) {
+                            involved.push(name);
+                        }
+                    }
+                }
+            }
+        }
+        involved
+    }
+
     pub(super) fn failure(&self, failure: NewtonFailure, ctx: &SolveContext) -> SimError {
         match failure {
             NewtonFailure::Singular(unknown) => SimError::Singular {
@@ -168,23 +189,7 @@ impl Simulator {
                     .iter()
                     .map(|&i| self.network.unknown_name(i).to_string())
                     .collect();
-                let mut involved: Vec<String> = worst
-                    .iter()
-                    .map(|&i| self.network.unknown_owner(i))
-                    .collect();
-                // Parts attached to the worst nodes.
-                for &i in &worst {
-                    if let UnknownKind::Node(n) = self.network.unknowns[i].1 {
-                        for part in &self.network.circuit.parts {
-                            if part.pins.contains(&n) {
-                                let name = format!("part `{}`", part.name);
-                                if !involved.contains(&name) {
-                                    involved.push(name);
-                                }
-                            }
-                        }
-                    }
-                }
+                let involved = self.involved(&worst);
                 SimError::NoConvergence {
                     time_s: ctx.time,
                     step_s: ctx.h,

@@ -41,7 +41,16 @@ pub struct Settings {
     /// and integration restarts after it, seconds; 0 turns corner handling off.
     /// Default 20 us.
     pub corner_step_s: f64,
+    /// The run stops with [`crate::engine::SimError::Stalled`] when [`STALL_WINDOW`] passes
+    /// of the step loop cover less simulated time than this many seconds each on average:
+    /// a circuit whose time constants are far shorter than its signals (a femtohenry coil, a
+    /// femtofarad reservoir) or a storm of discrete changes would otherwise run for ever.
+    /// Default 1 ns (the reference guard averages 100 us).
+    pub min_average_step_s: f64,
 }
+
+/// Passes of the step loop over which [`Settings::min_average_step_s`] is judged.
+pub const STALL_WINDOW: u64 = 100_000;
 
 impl Default for Settings {
     fn default() -> Self {
@@ -58,6 +67,7 @@ impl Default for Settings {
             max_newton_iterations: 50,
             max_operating_point_iterations: 200,
             event_tolerance_s: 1e-6,
+            min_average_step_s: 1e-9,
             gmin: 1e-12,
             corner_current_a: 10e-6,
             corner_step_s: 20e-6,

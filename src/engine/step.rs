@@ -135,7 +135,11 @@ impl Simulator {
     ) -> Result<(), SimError> {
         let time_eps = |t: f64| 1e-13 * t.abs().max(1e-6);
         let mut cascade = 0;
+        let mut watchdog = Watchdog::new(state);
         while t_end - state.time > time_eps(t_end) {
+            if watchdog.pass() {
+                watchdog.judge(self, state)?;
+            }
             if !self.network.discrete_devices.is_empty() {
                 if self.apply_crossings(state, observer) && cascade < 64 {
                     cascade += 1;
@@ -311,5 +315,92 @@ impl Simulator {
             state.step = h * growth;
         }
         state.corner_ahead = false;
+    }
+}
+
+/// Watches the step loop's progress: every [`STALL_WINDOW`] passes, the simulated time they
+/// covered must average at least [`Settings::min_average_step_s`].
+struct Watchdog {
+    passes: u64,
+    since_time: f64,
+    since_events: u64,
+}
+
+impl Watchdog {
+    fn new(state: &SimState) -> Self {
+        Self {
+            passes: 0,
+            since_time: state.time,
+            since_events: state.stats.located_events,
+        }
+    }
+
+    /// Counts one pass; true when a window is complete and must be judged.
+    fn pass(&mut self) -> bool {
+        self.passes += 1;
+        self.passes >= STALL_WINDOW
+    }
+
+    /// Judges a complete window and starts the next.
+    fn judge(&mut self, sim: &Simulator, state: &SimState) -> Result<(), SimError> {
+        let span = state.time - self.since_time;
+        let average = span / self.passes as f64;
+        let min = sim.settings.min_average_step_s;
+        if average < min {
+            return Err(sim.stalled(
+                state,
+                self.passes,
+                span,
+                state.stats.located_events - self.since_events,
+            ));
+        }
+        *self = Watchdog::new(state);
+        Ok(())
+    }
+}
+
+impl Simulator {
+    /// The error of a stalled run, naming the unknown that moved fastest in the last step
+    /// against its tolerance, and the parts around it.
+    fn stalled(&self, state: &SimState, passes: u64, span: f64, events: u64) -> SimError {
+        let network = &self.network;
+        let nodes = network.circuit.nodes.len();
+        let h = (state.time - state.past_t[0]).max(f64::MIN_POSITIVE);
+        let previous = &state.past_x[..network.dim()];
+        let tolerance = |i: usize, x: f64| {
+            let abstol = if i < nodes {
+                self.settings.voltage_abstol
+            } else {
+                self.settings.current_abstol
+            };
+            self.settings.reltol * x.abs() + abstol
+        };
+        let fastest = (1..network.dim())
+            .max_by(|&a, &b| {
+                let rate = |i: usize| (state.x[i] - previous[i]).abs() / tolerance(i, state.x[i]);
+                rate(a).total_cmp(&rate(b))
+            })
+            .unwrap_or(1);
+        let change = (state.x[fastest] - previous[fastest]).abs();
+        let time_constant_s = if change > 0.0 {
+            h * state.x[fastest].abs().max(tolerance(fastest, 0.0)) / change
+        } else {
+            h
+        };
+        SimError::Stalled(Box::new(Stall {
+            time_s: state.time,
+            passes,
+            span_s: span,
+            average_s: span / passes as f64,
+            min_average_s: self.settings.min_average_step_s,
+            events,
+            fastest: format!(
+                "`{}` of {}",
+                network.unknown_name(fastest),
+                network.unknown_owner(fastest)
+            ),
+            time_constant_s,
+            involved: self.involved(&[fastest]),
+        }))
     }
 }
