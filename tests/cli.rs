@@ -1309,3 +1309,55 @@ fn events_that_last_no_time_are_refused() {
     }
     assert!(!w.exists(), "no recording is written for a refused event");
 }
+
+#[test]
+fn negative_values_reach_the_checks_that_name_them() {
+    // A value starting with a minus sign is the option's value, checked like any other,
+    // not taken for an unknown option.
+    for (args, expected) in [
+        (
+            vec!["run", "--duration", "-1s"],
+            "--duration -1s: allowed from",
+        ),
+        (
+            vec!["run", "--max-step", "-1us"],
+            "--max-step -1us: allowed from",
+        ),
+        (
+            vec!["thresholds", "--resolution", "-1V"],
+            "--resolution -1V",
+        ),
+        (vec!["sweep", "--levels", "-10:50:10"], "--levels -10:50:10"),
+        (
+            vec!["detect", "waveforms/recloser.wav", "--calibrate", "-230V"],
+            "--calibrate -230V",
+        ),
+        (
+            vec![
+                "detect",
+                "waveforms/recloser.wav",
+                "--calibrate",
+                "230V",
+                "--dip",
+                "-5",
+            ],
+            "--dip -5",
+        ),
+        (
+            vec![
+                "detect",
+                "waveforms/recloser.wav",
+                "--calibrate",
+                "230V",
+                "--channel",
+                "-1",
+            ],
+            "--channel",
+        ),
+    ] {
+        let out = sagtrip(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+}

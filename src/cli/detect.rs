@@ -10,7 +10,7 @@ pub(crate) struct DetectArgs {
     /// Declared supply, e.g. 230V/50Hz (default: the --calibrate voltage, or the standard
     /// voltage nearest the first cycles, at the measured frequency's 50 or 60 Hz). A
     /// recording whose frequency differs from it by more than 5% is refused.
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
     /// Write the events to this CSV file.
     #[arg(long)]

@@ -148,11 +148,11 @@ that never connected its load); 2 a mistake in the input (a file, an option).";
 pub(crate) struct LimitArgs {
     /// Longest power-up before events, e.g. 30s or 120s: the load must be connected by then
     /// (default: 10 s, or five times the circuit's longest RC time constant if longer).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     power_up_limit: Option<String>,
     /// Longest run after an event's end waiting for the load to reconnect and the circuit
     /// to settle (default as for --power-up-limit).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     restore_limit: Option<String>,
 }
 
@@ -208,7 +208,7 @@ pub(crate) fn time_option(text: Option<&str>, name: &str) -> Result<Option<f64>,
                     Ok(v)
                 } else {
                     Err(format!(
-                        "--{name} {t}: allowed from {MIN_TIME_S} s to {MAX_TIME_S} s (one day)"
+                        "--{name} {t}: allowed from {MIN_TIME_S:e} s (1 ns) to {MAX_TIME_S} s (one day)"
                     ))
                 }
             })

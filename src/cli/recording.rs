@@ -8,34 +8,34 @@ pub(crate) struct RecordingInput {
     /// The recording: a .wav file, or a .csv file with a time and a voltage column.
     pub(crate) recording: PathBuf,
     /// WAV channel to read, counting from 0.
-    #[arg(long, default_value_t = 0)]
+    #[arg(long, default_value_t = 0, allow_hyphen_values = true)]
     pub(crate) channel: usize,
     /// Volts of a full-scale WAV sample (for CSV: a factor on the voltage column).
-    #[arg(long, conflicts_with = "calibrate")]
+    #[arg(long, conflicts_with = "calibrate", allow_hyphen_values = true)]
     pub(crate) volts_per_full_scale: Option<String>,
     /// Scale so that the RMS of the first whole cycles equals this, e.g. 230V.
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) calibrate: Option<String>,
     /// Header of the CSV time column (seconds).
-    #[arg(long, default_value = "time_s")]
+    #[arg(long, default_value = "time_s", allow_hyphen_values = true)]
     pub(crate) time_column: String,
     /// Header of the CSV voltage column.
-    #[arg(long, default_value = "voltage_V")]
+    #[arg(long, default_value = "voltage_V", allow_hyphen_values = true)]
     pub(crate) voltage_column: String,
     /// Dip threshold, % of the declared voltage.
-    #[arg(long, default_value_t = 90.0)]
+    #[arg(long, default_value_t = 90.0, allow_hyphen_values = true)]
     pub(crate) dip: f64,
     /// Swell threshold, % of the declared voltage.
-    #[arg(long, default_value_t = 110.0)]
+    #[arg(long, default_value_t = 110.0, allow_hyphen_values = true)]
     pub(crate) swell: f64,
     /// Interruption threshold, % of the declared voltage.
-    #[arg(long, default_value_t = 10.0)]
+    #[arg(long, default_value_t = 10.0, allow_hyphen_values = true)]
     pub(crate) interruption: f64,
     /// Hysteresis, % of the declared voltage.
-    #[arg(long, default_value_t = 2.0)]
+    #[arg(long, default_value_t = 2.0, allow_hyphen_values = true)]
     pub(crate) hysteresis: f64,
     /// Smallest phase jump flagged, degrees.
-    #[arg(long, default_value_t = 10.0)]
+    #[arg(long, default_value_t = 10.0, allow_hyphen_values = true)]
     pub(crate) phase_jump: f64,
 }
 

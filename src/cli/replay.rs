@@ -12,7 +12,7 @@ pub(crate) struct ReplayArgs {
     #[arg(long)]
     circuit: Option<PathBuf>,
     /// Declared supply, e.g. 230V/50Hz (default: the circuit's mains source).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
     /// Write the replayed waveforms (mains, rail, comparator outputs) to this CSV file.
     #[arg(long)]

@@ -9,11 +9,11 @@ pub(crate) struct RunArgs {
     pub(crate) circuit: Option<PathBuf>,
     /// Simulated time, e.g. 200ms, 1s (default: 2 s for a circuit with a relay, else 10
     /// mains cycles, or 100 ms without a sine source).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) duration: Option<String>,
     /// Largest time step, e.g. 50us (default 500us; the truncation-error control takes
     /// shorter steps wherever the waveforms need them).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) max_step: Option<String>,
     /// How the run begins (default: from rest, as when the unit is plugged in).
     #[arg(long, value_enum, default_value_t = StartArg::Rest)]
@@ -38,26 +38,26 @@ pub(crate) struct RunArgs {
     /// dip:40%:10cyc@90, interrupt:250cyc, swell:120%:25cyc, vary:70%:0cyc/1cyc/25cyc,
     /// ramp:100%-65%:20s (items joined by `;`, with gap:DURATION between), or a preset name
     /// from `sagtrip presets` such as class3-dip-40 (optionally @DEGREES).
-    #[arg(long, conflicts_with = "event_file")]
+    #[arg(long, conflicts_with = "event_file", allow_hyphen_values = true)]
     pub(crate) event: Option<String>,
     /// Supply event from a TOML event file (a sequence; see docs/events.md).
     #[arg(long)]
     pub(crate) event_file: Option<PathBuf>,
     /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) nominal: Option<String>,
     /// The source part driven as the mains (default: the only sine voltage source).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) mains: Option<String>,
     /// The relay switching the load (default: the only relay).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) relay: Option<String>,
     /// The logic supply-rail node watched for brown-out (default: vcc, or the regulator
     /// output).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) rail: Option<String>,
     /// Rise and fall time of abrupt changes (default 5us).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     pub(crate) edge: Option<String>,
     /// With --event: draw the run as stacked panels into FILE.svg or FILE.png.
     #[arg(long)]

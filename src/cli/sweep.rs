@@ -8,22 +8,22 @@ pub(crate) struct SweepArgs {
     #[arg(long)]
     circuit: Option<PathBuf>,
     /// Dip residual levels in % of nominal, FROM:TO:STEP.
-    #[arg(long, default_value = "0:90:10")]
+    #[arg(long, default_value = "0:90:10", allow_hyphen_values = true)]
     levels: String,
     /// Swell levels in % of nominal, FROM:TO:STEP (none unless given).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     swells: Option<String>,
     /// Shortest and longest duration, e.g. 0.5cyc:10s.
-    #[arg(long, default_value = "0.5cyc:10s")]
+    #[arg(long, default_value = "0.5cyc:10s", allow_hyphen_values = true)]
     durations: String,
     /// Number of durations, spaced evenly on a log scale.
-    #[arg(long, default_value_t = 12)]
+    #[arg(long, default_value_t = 12, allow_hyphen_values = true)]
     duration_count: usize,
     /// Start phase angles in degrees, comma-separated; each cell reports the worst case.
-    #[arg(long, default_value = "0,90")]
+    #[arg(long, default_value = "0,90", allow_hyphen_values = true)]
     phases: String,
     /// Boundary resolution, % of nominal.
-    #[arg(long, default_value_t = 0.5)]
+    #[arg(long, default_value_t = 0.5, allow_hyphen_values = true)]
     resolution: f64,
     /// Skip the boundary refinement.
     #[arg(long)]
@@ -42,11 +42,11 @@ pub(crate) struct SweepArgs {
     #[arg(long)]
     json: bool,
     /// Nominal supply, e.g. 230V/50Hz (default: the mains source's own).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
     /// Run only the K-th of N deterministic shares of the grid (for array jobs); join the
     /// shards' folders with `sagtrip merge`.
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     shard: Option<String>,
     /// Continue the sweep journaled in --out, skipping the points it already holds.
     #[arg(long)]

@@ -10,31 +10,31 @@ pub(crate) struct SynthArgs {
     #[arg(long)]
     out: PathBuf,
     /// Nominal supply (default 230V/50Hz).
-    #[arg(long, default_value = "230V/50Hz")]
+    #[arg(long, default_value = "230V/50Hz", allow_hyphen_values = true)]
     nominal: String,
     /// Samples per second.
-    #[arg(long, default_value_t = 10_000)]
+    #[arg(long, default_value_t = 10_000, allow_hyphen_values = true)]
     rate: u32,
     /// Sample encoding.
     #[arg(long, value_enum, default_value_t = FormatArg::Int16)]
     format: FormatArg,
     /// Volts represented by a full-scale sample (default: twice the nominal peak).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     volts_per_full_scale: Option<String>,
     /// Nominal supply before the event (default 10cyc).
-    #[arg(long, default_value = "10cyc")]
+    #[arg(long, default_value = "10cyc", allow_hyphen_values = true)]
     lead: String,
     /// Nominal supply after the event (default 50cyc).
-    #[arg(long, default_value = "50cyc")]
+    #[arg(long, default_value = "50cyc", allow_hyphen_values = true)]
     tail: String,
     /// Rise and fall time of abrupt changes (default 5us).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     edge: Option<String>,
     /// Harmonics to add, ORDER:PERCENT of the fundamental, comma-separated (e.g. 3:5,5:3).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     harmonics: Option<String>,
     /// Uniform noise to add, percent of the nominal peak (reproducible: fixed seed).
-    #[arg(long, default_value_t = 0.0)]
+    #[arg(long, default_value_t = 0.0, allow_hyphen_values = true)]
     noise: f64,
 }
 

@@ -8,7 +8,7 @@ pub(crate) struct TableArgs {
     #[arg(long)]
     circuit: Option<PathBuf>,
     /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
     /// IEC 61000-4-11 test class of the default plan (2 or 3).
     #[arg(long, default_value_t = 3)]
@@ -17,7 +17,7 @@ pub(crate) struct TableArgs {
     #[arg(long)]
     plan: Option<PathBuf>,
     /// Start phase angles in degrees, e.g. 0,90,180,270 (default: the plan's).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     phases: Option<String>,
     /// Leave the static thresholds out.
     #[arg(long)]
@@ -34,7 +34,12 @@ pub(crate) struct TableArgs {
     html: Option<PathBuf>,
     /// Durations of the HTML report's trip map (log-spaced from half a cycle to 10 s);
     /// 0 leaves the map out.
-    #[arg(long, value_name = "N", default_value_t = 10)]
+    #[arg(
+        long,
+        value_name = "N",
+        default_value_t = 10,
+        allow_hyphen_values = true
+    )]
     map_durations: usize,
     /// Print the table as JSON instead of Markdown.
     #[arg(long)]
@@ -45,13 +50,13 @@ pub(crate) struct TableArgs {
     corners: bool,
     /// With --corners: screen the values first (each alone at its limits) and vary only the
     /// K with the largest effect in the corners, the others as written (K from 1 to 8).
-    #[arg(long, value_name = "K")]
+    #[arg(long, value_name = "K", allow_hyphen_values = true)]
     screen: Option<usize>,
     /// Also run this many Monte Carlo samples of the toleranced values.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_hyphen_values = true)]
     monte_carlo: Option<usize>,
     /// Seed of the Monte Carlo samples (the same seed gives the same table).
-    #[arg(long, default_value_t = 1)]
+    #[arg(long, default_value_t = 1, allow_hyphen_values = true)]
     seed: u64,
     /// No progress bar.
     #[arg(long)]

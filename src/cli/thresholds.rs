@@ -8,17 +8,17 @@ pub(crate) struct ThresholdsArgs {
     #[arg(long)]
     circuit: Option<PathBuf>,
     /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
-    #[arg(long)]
+    #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
     /// Bisection resolution, volts RMS.
-    #[arg(long, default_value = "0.1V")]
+    #[arg(long, default_value = "0.1V", allow_hyphen_values = true)]
     resolution: String,
     /// How long each test level is held: longer than the protector's trip and reconnection
     /// delays (e.g. 2s, 100cyc).
-    #[arg(long, default_value = "2s")]
+    #[arg(long, default_value = "2s", allow_hyphen_values = true)]
     hold: String,
     /// Time of each slow ramp, out through the threshold and back.
-    #[arg(long, default_value = "10s")]
+    #[arg(long, default_value = "10s", allow_hyphen_values = true)]
     ramp: String,
     /// Draw the trip and reset voltages on a voltage axis into FILE.svg or FILE.png.
     #[arg(long)]
