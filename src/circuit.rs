@@ -68,7 +68,7 @@ pub struct ParameterSetInfo {
 pub struct Part {
     /// Unique name.
     pub name: String,
-    /// Node of each pin, in the kind's pin order (see [`PartSpec::pin_names`]).
+    /// Node of each pin, in the kind's pin order (see [`crate::circuit_file::pin_names`]).
     pub pins: Vec<NodeId>,
     /// Kind and parameters.
     pub spec: PartSpec,
