@@ -263,3 +263,33 @@ fn values_beyond_any_real_part_are_refused_naming_the_part() {
     );
     common::circuit(&zero);
 }
+
+#[test]
+fn nodes_held_only_by_current_sources_are_undetermined() {
+    // Two current sources in series leave the node between them without a voltage (it
+    // read -1e12 V); a current source feeding an inductor forces its current (it rang from
+    // -30 to +50 V). Both are the duals of a loop of voltage sources (circuit theory, from
+    // memory).
+    let series = "[part.i1]\nkind = \"current-source\"\npins = [\"gnd\", \"a\"]\ndc = \"1mA\"\n\
+                  [part.i2]\nkind = \"current-source\"\npins = [\"a\", \"b\"]\ndc = \"2mA\"\n\
+                  [part.r]\nkind = \"resistor\"\npins = [\"b\", \"gnd\"]\nresistance = \"1k\"\n";
+    check(
+        series,
+        3,
+        "part.i1.pins",
+        "a current source is no connection",
+    );
+    let coil = "[part.i1]\nkind = \"current-source\"\npins = [\"gnd\", \"a\"]\ndc = \"10mA\"\n\
+                [part.l]\nkind = \"inductor\"\npins = [\"a\", \"b\"]\ninductance = \"1H\"\n\
+                [part.r]\nkind = \"resistor\"\npins = [\"b\", \"gnd\"]\nresistance = \"1k\"\n";
+    check(
+        coil,
+        1,
+        "part.i1",
+        "node a meets the rest of the circuit only through",
+    );
+    // A resistor across the source makes both well posed.
+    common::circuit(&format!(
+        "{coil}[part.r_shunt]\nkind = \"resistor\"\npins = [\"a\", \"gnd\"]\nresistance = \"100k\"\n"
+    ));
+}

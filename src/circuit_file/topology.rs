@@ -2,9 +2,12 @@
 
 use super::*;
 
-/// Pin pairs of a part that conduct to each other at DC or through its own element.
+/// Pin pairs of a part that conduct to each other at DC or through its own element. A
+/// current source does not: it sets a current, not a voltage, so nodes joined to the rest
+/// only through current sources have no defined voltage.
 pub(super) fn conductive_pairs(spec: &PartSpec) -> Vec<(usize, usize)> {
     match spec {
+        PartSpec::CurrentSource(_) => Vec::new(),
         PartSpec::Transformer(_) => vec![(0, 1), (2, 3)],
         PartSpec::Bridge(_) => vec![(0, 2), (1, 2), (0, 3)],
         PartSpec::Switch(_) => vec![(0, 1), (2, 3)],
@@ -154,12 +157,14 @@ impl Reader<'_> {
                 origins[pi].pin_spans[k].clone(),
                 &format!("part.{}.pins", parts[pi].name),
                 format!(
-                    "no path to gnd from node{} {} (a floating group: give it a connection to gnd, e.g. through a resistor)",
+                    "no path to gnd from node{} {} (a floating group: give it a connection to gnd, e.g. through a resistor; a current source is no connection, it sets a current and leaves the voltage free)",
                     if names.len() > 1 { "s" } else { "" },
                     names.join(", ")
                 ),
             );
         }
+
+        self.current_source_cut_sets(nodes, parts, origins);
 
         // Loops of voltage sources and resistance-free inductive branches.
         let mut stiff = UnionFind::new(nodes.len());
@@ -186,6 +191,73 @@ impl Reader<'_> {
                     stiff.union(a, b);
                     edges.push((a, b, pi));
                 }
+            }
+        }
+    }
+}
+
+impl Reader<'_> {
+    /// Groups of nodes joined to the rest of the circuit only through current sources and
+    /// inductors (with at least one current source): the source forces the inductors'
+    /// currents, which the circuit cannot then set from their own states (the dual of a loop
+    /// of voltage sources and inductors).
+    fn current_source_cut_sets(
+        &mut self,
+        nodes: &[String],
+        parts: &[Part],
+        origins: &[PartOrigin],
+    ) {
+        let inductive =
+            |spec: &PartSpec| matches!(spec, PartSpec::Inductor { .. } | PartSpec::Transformer(_));
+        let mut groups = UnionFind::new(nodes.len());
+        for part in parts.iter().filter(|p| !inductive(&p.spec)) {
+            for (x, y) in conductive_pairs(&part.spec) {
+                groups.union(part.pins[x], part.pins[y]);
+            }
+        }
+        let ground = groups.find(0);
+        let mut reported: Vec<usize> = Vec::new();
+        for (pi, part) in parts.iter().enumerate() {
+            if !matches!(part.spec, PartSpec::CurrentSource(_)) {
+                continue;
+            }
+            for &pin in &part.pins {
+                let root = groups.find(pin);
+                if root == ground || reported.contains(&root) {
+                    continue;
+                }
+                // The parts crossing the group's boundary.
+                let crossing: Vec<&Part> = parts
+                    .iter()
+                    .filter(|p| {
+                        let inside = p.pins.iter().filter(|&&n| groups.find(n) == root).count();
+                        inside > 0 && inside < p.pins.len()
+                    })
+                    .collect();
+                let only_sources_and_coils = crossing
+                    .iter()
+                    .all(|p| matches!(p.spec, PartSpec::CurrentSource(_)) || inductive(&p.spec));
+                if !only_sources_and_coils || !crossing.iter().any(|p| inductive(&p.spec)) {
+                    continue;
+                }
+                reported.push(root);
+                let group: Vec<&str> = (1..nodes.len())
+                    .filter(|&n| groups.find(n) == root)
+                    .map(|n| nodes[n].as_str())
+                    .collect();
+                let names: Vec<&str> = crossing.iter().map(|p| p.name.as_str()).collect();
+                self.problem(
+                    origins[pi].name_span.clone(),
+                    &format!("part.{}", part.name),
+                    format!(
+                        "{} {} the rest of the circuit only through current sources and \
+                         inductors ({}): the source forces the inductor currents; add a resistor \
+                         across the current source or from the node to gnd",
+                        if group.len() > 1 { "nodes" } else { "node" },
+                        group.join(", ") + if group.len() > 1 { " meet" } else { " meets" },
+                        names.join(", ")
+                    ),
+                );
             }
         }
     }
