@@ -160,8 +160,10 @@ pub enum ProfileError {
 
 impl Profile {
     /// Checks that every step is an event: a dip, interruption, swell or ramp lasts longer
-    /// than 0 and at least one edge time (so its level is reached); a gap lasts longer than 0;
-    /// a variation's three times add up to more than 0. `frequency_hz` converts cycles.
+    /// than 0 and at least one edge time (so its level is reached); a gap lasts longer than 0
+    /// (except right after a ramp, where a zero gap brings the supply back to nominal at
+    /// once); a variation's three times add up to more than 0. `frequency_hz` converts
+    /// cycles.
     pub fn check(&self, frequency_hz: f64) -> Result<(), ProfileError> {
         for (k, step) in self.steps.iter().enumerate() {
             let spec = || {
@@ -191,7 +193,8 @@ impl Profile {
                     false,
                 ),
             };
-            if duration_s <= 0.0 {
+            let after_ramp = k > 0 && matches!(self.steps[k - 1], Step::Ramp { .. });
+            if duration_s <= 0.0 && !(after_ramp && matches!(step, Step::Gap { .. })) {
                 return Err(ProfileError::Empty {
                     step: k + 1,
                     spec: spec(),
@@ -288,6 +291,9 @@ mod tests {
         ));
         let p = parse_spec("dip:40%:1ms", 5e-3).unwrap();
         assert!(p.check(50.0).is_err());
+        // After a ramp, a zero gap returns the supply to nominal at once.
+        let p = parse_spec("ramp:100%-65%:2s;gap:0s", DEFAULT_EDGE_S).unwrap();
+        assert_eq!(p.check(50.0), Ok(()));
         // The shortest IEC 61000-4-11 dip, half a cycle, is an event.
         let p = parse_spec(
             "dip:0%:0.5cyc;gap:1cyc;vary:70%:0cyc/1cyc/25cyc",
