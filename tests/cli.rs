@@ -1248,6 +1248,29 @@ fn nonsense_thresholds_scales_harmonics_and_phases_are_refused() {
 }
 
 #[test]
+fn a_mains_at_a_frequency_no_supply_has_is_refused() {
+    // 1 MHz is a valid sine for a circuit, but no mains: no verdict is given on it.
+    let text = std::fs::read_to_string("examples/guard-230v.toml")
+        .unwrap()
+        .replace("frequency = \"50Hz\"", "frequency = \"1MHz\"");
+    let path = temp_path("megahertz-mains.toml");
+    std::fs::write(&path, text).unwrap();
+    let out = sagtrip(&[
+        "run",
+        "--circuit",
+        path.to_str().unwrap(),
+        "--event",
+        "dip:40%:10ms",
+    ]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("runs at 1e6 Hz: a mains supply is allowed from 1 to 1000 Hz"),
+        "{err}"
+    );
+}
+
+#[test]
 fn events_that_last_no_time_are_refused() {
     // A step of no duration, or shorter than the edge the supply takes to reach its level,
     // makes no event: refused before any simulation, naming the step (common practice: a

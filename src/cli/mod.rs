@@ -89,7 +89,7 @@ pub(crate) fn scenario_failure(name: &str, e: sagtrip::scenario::ScenarioError) 
             Failure::Run(format!("{name}: {e} (raise it with --power-up-limit)"))
         }
         E::Simulation(_) => Failure::Run(format!("{name}: {e}")),
-        E::NoMains(_) | E::Unknown(_) | E::NoRelay | E::Profile(_) => {
+        E::NoMains(_) | E::Unknown(_) | E::NoRelay | E::Profile(_) | E::MainsFrequency { .. } => {
             Failure::Input(format!("{name}: {e}"))
         }
     }
@@ -221,7 +221,7 @@ pub(crate) const MIN_TIME_S: f64 = 1e-9;
 /// See [`MIN_TIME_S`].
 pub(crate) const MAX_TIME_S: f64 = 86_400.0;
 /// The range of a supply frequency, hertz.
-pub(crate) const FREQUENCY_RANGE_HZ: (f64, f64) = (1.0, 1000.0);
+pub(crate) const FREQUENCY_RANGE_HZ: (f64, f64) = sagtrip::scenario::MAINS_FREQUENCY_RANGE_HZ;
 /// The most durations, or levels, of a sweep's grid.
 pub(crate) const MAX_GRID_AXIS: usize = 1000;
 

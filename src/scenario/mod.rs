@@ -34,6 +34,10 @@ pub struct Mains {
     pub phase_deg: f64,
 }
 
+/// The frequencies a mains supply may have, hertz: every public supply (16.7 Hz railway,
+/// 50 and 60 Hz, 400 Hz aircraft) lies well inside.
+pub const MAINS_FREQUENCY_RANGE_HZ: (f64, f64) = (1.0, 1000.0);
+
 /// Why an event run could not be made.
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum ScenarioError {
@@ -67,6 +71,18 @@ pub enum ScenarioError {
     /// The event has a step that makes no event (no time, or shorter than its edges).
     #[error(transparent)]
     Profile(#[from] crate::profile::ProfileError),
+    /// The mains runs at a frequency no supply has.
+    #[error(
+        "the mains `{part}` runs at {frequency_hz:e} Hz: a mains supply is allowed from {} to {} Hz",
+        MAINS_FREQUENCY_RANGE_HZ.0,
+        MAINS_FREQUENCY_RANGE_HZ.1
+    )]
+    MainsFrequency {
+        /// The mains source part.
+        part: String,
+        /// Its frequency, hertz.
+        frequency_hz: f64,
+    },
     /// The simulation failed.
     #[error(transparent)]
     Simulation(#[from] SimError),

@@ -96,6 +96,13 @@ pub fn settle(circuit: &Circuit, options: &EventOptions) -> Result<Settled, Scen
         .map_or((mains.rms, mains.frequency_hz), |n| {
             (n.rms_v, n.frequency_hz)
         });
+    let (lo, hi) = MAINS_FREQUENCY_RANGE_HZ;
+    if !(lo..=hi).contains(&frequency_hz) {
+        return Err(ScenarioError::MainsFrequency {
+            part: circuit.parts[mains.part].name.clone(),
+            frequency_hz,
+        });
+    }
     let relay = find_relay(circuit, options.relay.as_deref())?.ok_or(ScenarioError::NoRelay)?;
     let relays = relay_parts(circuit);
     let rail = find_rail(circuit, options.rail.as_deref())?;
