@@ -446,3 +446,27 @@ fn a_corrupt_sample_is_refused_with_its_place() {
         "{err}"
     );
 }
+
+#[test]
+fn a_latin1_comment_in_a_csv_recording_is_read_past() {
+    // An instrument's export with a degree sign in Latin-1 (byte 0xB0) in a comment line.
+    let path =
+        std::env::temp_dir().join(format!("sagtrip-detect-{}-latin1.csv", std::process::id()));
+    let mut bytes = b"# probe at 25 \xb0C\ntime_s,voltage_V\n".to_vec();
+    for k in 0..400 {
+        let t = f64::from(k) / 10_000.0;
+        bytes.extend(
+            format!(
+                "{t},{}\n",
+                325.0 * (2.0 * std::f64::consts::PI * 50.0 * t).sin()
+            )
+            .bytes(),
+        );
+    }
+    std::fs::write(&path, bytes).unwrap();
+    let samples = sagtrip::recording::open(&path, 0, &sagtrip::recording::CsvColumns::default())
+        .unwrap()
+        .collect::<Result<Vec<_>, _>>()
+        .unwrap();
+    assert_eq!(samples.len(), 400);
+}

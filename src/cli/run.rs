@@ -227,13 +227,12 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
         }
     };
 
-    let what = match &args.event_file {
-        Some(path) => path.display().to_string(),
-        None => "--event".to_string(),
-    };
     profile
         .check(frequency)
-        .map_err(|e| format!("{what}: {e}"))?;
+        .map_err(|e| match &args.event_file {
+            Some(path) => format!("{}: event.{}: {e}", path.display(), e.step()),
+            None => format!("--event: {e}"),
+        })?;
     let started = Instant::now();
     let result = run_event(&circuit, &profile, &options).map_err(|e| scenario_failure(&name, e))?;
     let wall = started.elapsed().as_secs_f64();

@@ -158,6 +158,15 @@ pub enum ProfileError {
     },
 }
 
+impl ProfileError {
+    /// The step the error is about, counted from 1 (an event file's `event.N`).
+    pub fn step(&self) -> usize {
+        match self {
+            ProfileError::Empty { step, .. } | ProfileError::ShorterThanEdge { step, .. } => *step,
+        }
+    }
+}
+
 impl Profile {
     /// Checks that every step is an event: a dip, interruption, swell or ramp lasts longer
     /// than 0 and at least one edge time (so its level is reached); a gap lasts longer than 0

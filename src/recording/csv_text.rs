@@ -72,7 +72,18 @@ pub(crate) fn open_csv(path: &Path, columns: &CsvColumns) -> Result<Samples, Rec
         message: e.to_string(),
     };
     let file = File::open(path).map_err(io)?;
-    let mut lines = BufReader::new(file).lines().enumerate();
+    // Lines as text, whatever their encoding: a comment or header in Latin-1 (an
+    // instrument's degree sign or umlaut) must not stop the reading; a byte that is not
+    // UTF-8 becomes U+FFFD, and a sample line is judged on its fields.
+    let mut lines = BufReader::new(file)
+        .split(b'\n')
+        .map(|line| {
+            line.map(|bytes| {
+                let text = String::from_utf8_lossy(&bytes);
+                text.strip_suffix('\r').unwrap_or(&text).to_string()
+            })
+        })
+        .enumerate();
     let line_error = |line: usize, message: String| RecordingError::Line {
         path: name.clone(),
         line,
