@@ -1334,6 +1334,28 @@ fn events_that_last_no_time_are_refused() {
 }
 
 #[test]
+fn a_recording_too_large_to_build_is_refused() {
+    // These ran out of memory (a panic) before.
+    let w = temp_path("too-large.wav");
+    let w = w.to_str().unwrap();
+    for (args, expected) in [
+        (
+            vec!["synth", "dip:40%:10cyc", "--out", w, "--rate", "4294967295"],
+            "--rate 4294967295: allowed from 1000 to 1000000",
+        ),
+        (
+            vec!["synth", "dip:40%:86400s", "--out", w],
+            "at most 100000000",
+        ),
+    ] {
+        let out = sagtrip(&args);
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(expected), "{args:?}: {err}");
+    }
+}
+
+#[test]
 fn negative_values_reach_the_checks_that_name_them() {
     // A value starting with a minus sign is the option's value, checked like any other,
     // not taken for an unknown option.

@@ -57,8 +57,13 @@ pub(crate) fn synth(args: &SynthArgs) -> Outcome {
     profile
         .check(frequency)
         .map_err(|e| format!("event: {e}"))?;
-    if args.rate < 1000 {
-        return Err(format!("--rate {}: at least 1000 samples per second", args.rate).into());
+    if !(1000..=sagtrip::synth::MAX_SAMPLE_RATE).contains(&args.rate) {
+        return Err(format!(
+            "--rate {}: allowed from 1000 to {} samples per second",
+            args.rate,
+            sagtrip::synth::MAX_SAMPLE_RATE
+        )
+        .into());
     }
     let full_scale = match &args.volts_per_full_scale {
         Some(text) => parse_value(text, Quantity::Voltage)
@@ -110,6 +115,15 @@ pub(crate) fn synth(args: &SynthArgs) -> Outcome {
             return Err("--noise must not be negative".into());
         },
     };
+    let count = sagtrip::synth::sample_count(&profile, &options);
+    if count > sagtrip::synth::MAX_SAMPLES {
+        return Err(format!(
+            "the recording would hold {count} samples: at most {} (shorten the event, the lead \
+             or the tail, or lower --rate)",
+            sagtrip::synth::MAX_SAMPLES
+        )
+        .into());
+    }
     let volts = samples(&profile, &options);
     let bytes = wav_bytes(&volts, &options).map_err(|e| e.to_string())?;
     write_atomic(&args.out, |w| w.write_all(&bytes))
