@@ -1334,6 +1334,21 @@ fn events_that_last_no_time_are_refused() {
 }
 
 #[test]
+fn an_input_file_over_10_mb_is_refused_before_it_is_read() {
+    // A 50 MB one-line circuit took 1.8 GB of memory to check.
+    let path = temp_path("huge-circuit.toml");
+    std::fs::write(&path, "#".repeat(10_000_001)).unwrap();
+    let out = sagtrip(&["check", "--circuit", path.to_str().unwrap()]);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(
+        err.contains("holds 10000001 bytes: at most 10000000"),
+        "{err}"
+    );
+    std::fs::remove_file(&path).unwrap();
+}
+
+#[test]
 fn a_recording_too_large_to_build_is_refused() {
     // These ran out of memory (a panic) before.
     let w = temp_path("too-large.wav");

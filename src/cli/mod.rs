@@ -180,16 +180,30 @@ pub(crate) fn load_circuit(path: Option<&Path>) -> Result<(Circuit, String), Str
     load_circuit_and_text(path).map(|(circuit, name, _)| (circuit, name))
 }
 
+/// The largest circuit, event or plan file read, bytes: a hand-written file is a few
+/// kilobytes, and a generated one far under this.
+pub(crate) const MAX_TEXT_FILE_BYTES: u64 = 10_000_000;
+
+/// Reads a text input file (`what` names it in messages), refusing one over
+/// [`MAX_TEXT_FILE_BYTES`] before reading it.
+pub(crate) fn read_text(path: &Path, what: &str) -> Result<String, String> {
+    let cannot = |e: std::io::Error| format!("cannot read {what} {}: {e}", path.display());
+    let size = std::fs::metadata(path).map_err(cannot)?.len();
+    if size > MAX_TEXT_FILE_BYTES {
+        return Err(format!(
+            "{what} {} holds {size} bytes: at most {MAX_TEXT_FILE_BYTES} (10 MB) are read",
+            path.display()
+        ));
+    }
+    std::fs::read_to_string(path).map_err(cannot)
+}
+
 /// As [`load_circuit`], also returning the file's text (to build tolerance cases from).
 pub(crate) fn load_circuit_and_text(
     path: Option<&Path>,
 ) -> Result<(Circuit, String, String), String> {
     let (text, name) = match path {
-        Some(path) => (
-            std::fs::read_to_string(path)
-                .map_err(|e| format!("cannot read circuit file {}: {e}", path.display()))?,
-            path.display().to_string(),
-        ),
+        Some(path) => (read_text(path, "circuit file")?, path.display().to_string()),
         None => (
             builtin::REFERENCE_GUARD.to_string(),
             builtin::REFERENCE_GUARD_NAME.to_string(),

@@ -211,8 +211,7 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
         .map_or(mains.frequency_hz, |n| n.frequency_hz);
     let profile = match &args.event_file {
         Some(path) => {
-            let text = std::fs::read_to_string(path)
-                .map_err(|e| format!("cannot read event file {}: {e}", path.display()))?;
+            let text = read_text(path, "event file")?;
             let mut profile =
                 sagtrip::profile::parse_event_file(&text, &path.display().to_string())
                     .map_err(|e| e.to_string())?;

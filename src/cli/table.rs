@@ -178,8 +178,7 @@ fn plan_of(
         .unwrap_or(50.0);
     let mut plan = match &args.plan {
         Some(path) => {
-            let text = std::fs::read_to_string(path)
-                .map_err(|e| format!("cannot read plan {}: {e}", path.display()))?;
+            let text = read_text(path, "plan")?;
             parse_plan(&text, &path.display().to_string(), frequency_hint)
                 .map_err(|e| e.to_string())?
         }
