@@ -126,7 +126,14 @@ pub struct Trace {
     /// stop at a skip and resume after it; [`Trace::rows`] fills the gap with the repeated
     /// cycle.
     pub skips: Vec<Skip>,
+    /// Keep only the rows of about the last this many seconds (`None` keeps every row):
+    /// a long run whose report needs only its end then holds bounded memory. Events are
+    /// all kept.
+    pub keep_last_s: Option<f64>,
 }
+
+/// Rows a trace with [`Trace::keep_last_s`] holds before it drops old ones.
+const KEEP_SLACK_ROWS: usize = 4096;
 
 /// Whole cycles a run skipped in a periodic steady state: the cycle that ended at `at_s`
 /// repeats `cycles` times.
@@ -162,6 +169,26 @@ impl Trace {
         for (probe, column) in self.probes.iter().zip(&mut self.columns) {
             column.push(probe.value(network, state));
         }
+        if let Some(keep) = self.keep_last_s {
+            self.drop_before(state.time - keep);
+        }
+    }
+
+    /// Drops the rows before `t` once enough have gathered (amortised: a drop happens
+    /// only when the old rows outnumber the slack). Skips before `t` go too.
+    fn drop_before(&mut self, t: f64) {
+        if self.time.len() < 2 * KEEP_SLACK_ROWS {
+            return;
+        }
+        let old = self.time.partition_point(|&x| x < t);
+        if old < KEEP_SLACK_ROWS {
+            return;
+        }
+        self.time.drain(..old);
+        for column in &mut self.columns {
+            column.drain(..old);
+        }
+        self.skips.retain(|s| s.at_s >= t);
     }
 
     /// Notes that `cycles` whole cycles of length `period_s` were skipped at `at_s` (the
@@ -222,6 +249,7 @@ impl Trace {
             events: self.events.clone(),
             min_interval_s: self.min_interval_s,
             skips: Vec::new(),
+            keep_last_s: self.keep_last_s,
         }
     }
 
@@ -260,5 +288,32 @@ impl Observer for Trace {
 
     fn event(&mut self, _network: &Network, event: &DiscreteEvent) {
         self.events.push(*event);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn a_trace_that_keeps_its_end_holds_bounded_rows() {
+        let mut trace = Trace::new(vec![Probe::Voltage { node: 1 }]);
+        trace.keep_last_s = Some(0.02);
+        for k in 0..1_000_000 {
+            let t = k as f64 * 1e-5;
+            trace.time.push(t);
+            trace.columns[0].push(t);
+            trace.drop_before(t - 0.02);
+        }
+        // 10 s recorded at 10 us: only the last 20 ms (2000 rows) and the slack remain.
+        assert!(
+            trace.time.len() <= 2000 + 2 * KEEP_SLACK_ROWS,
+            "{}",
+            trace.time.len()
+        );
+        let last = *trace.time.last().unwrap();
+        assert!(trace.time[0] <= last - 0.02);
+        assert_eq!(trace.columns[0].len(), trace.time.len());
+        assert_eq!(trace.columns[0][0], trace.time[0]);
     }
 }

@@ -126,7 +126,13 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
     let mut state = sim
         .start(start)
         .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
+    // Settled values: over the last mains cycle, or the last tenth of the run. Without a
+    // trace file only that window is kept (memory stays bounded on long runs).
+    let window_s = mains_hz.map_or(0.1 * duration, |f| (1.0 / f).min(duration));
     let mut trace = Trace::new(probes);
+    if args.trace.is_none() {
+        trace.keep_last_s = Some(2.0 * window_s);
+    }
     trace.record(sim.network(), &state);
     sim.advance(&mut state, duration, &mut trace)
         .map_err(|e| Failure::Run(format!("{name}: {e}")))?;
@@ -136,8 +142,6 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
         write_atomic(path, |w| trace.write_csv(&circuit, w))
             .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
     }
-    // Settled values: over the last mains cycle, or the last tenth of the run.
-    let window_s = mains_hz.map_or(0.1 * duration, |f| (1.0 / f).min(duration));
     let trace_file = args.trace.as_ref().map(|p| p.display().to_string());
     let report = RunReport {
         name: &name,
