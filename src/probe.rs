@@ -300,7 +300,7 @@ mod tests {
         let mut trace = Trace::new(vec![Probe::Voltage { node: 1 }]);
         trace.keep_last_s = Some(0.02);
         for k in 0..1_000_000 {
-            let t = k as f64 * 1e-5;
+            let t = f64::from(k) * 1e-5;
             trace.time.push(t);
             trace.columns[0].push(t);
             trace.drop_before(t - 0.02);
