@@ -1387,6 +1387,10 @@ fn negative_values_reach_the_checks_that_name_them() {
             vec!["thresholds", "--resolution", "-1V"],
             "--resolution -1V",
         ),
+        (
+            vec!["thresholds", "--resolution", "1e-300V"],
+            "--resolution 1e-300V: allowed from 1 mV to 100 V",
+        ),
         (vec!["sweep", "--levels", "-10:50:10"], "--levels -10:50:10"),
         (
             vec!["detect", "waveforms/recloser.wav", "--calibrate", "-230V"],
