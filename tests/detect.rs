@@ -470,3 +470,46 @@ fn a_latin1_comment_in_a_csv_recording_is_read_past() {
         .unwrap();
     assert_eq!(samples.len(), 400);
 }
+
+#[test]
+fn a_streamed_replay_trace_is_the_kept_one_byte_for_byte() {
+    // The trace written chunk by chunk while a replay runs (bounded memory) must be the one
+    // the replay would keep and write at the end.
+    let guard =
+        sagtrip::circuit_file::parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+    let settled =
+        sagtrip::scenario::settle(&guard, &sagtrip::scenario::EventOptions::default()).unwrap();
+    // 2.7 s of recording: streamed in one-second chunks, then the rest.
+    let volts = synthetic("interrupt:10cyc", 1.5, false);
+    let probes = sagtrip::plot::plot_probes(&guard);
+    let kept = settled
+        .replay(
+            volts.iter().map(|&v| Ok::<f64, String>(v)),
+            f64::from(RATE),
+            Thresholds::default(),
+            Some(probes.clone()),
+        )
+        .unwrap();
+    let mut expected = Vec::new();
+    kept.trace
+        .as_ref()
+        .unwrap()
+        .write_csv(&guard, &mut expected)
+        .unwrap();
+    let mut streamed = Vec::new();
+    let replay = settled
+        .replay_traced(
+            volts.iter().map(|&v| Ok::<f64, String>(v)),
+            f64::from(RATE),
+            Thresholds::default(),
+            Some(sagtrip::scenario::TraceOut {
+                probes,
+                stream: Some(&mut streamed),
+            }),
+            &mut |_| {},
+        )
+        .unwrap();
+    assert!(expected.len() > 10_000);
+    assert!(streamed == expected, "the streamed trace differs");
+    assert_eq!(replay.trips, kept.trips);
+}

@@ -2,7 +2,7 @@
 
 use super::recording::*;
 use super::*;
-use sagtrip::scenario::ReplayReport;
+use sagtrip::scenario::{ReplayReport, TraceOut};
 
 #[derive(Args)]
 pub(crate) struct ReplayArgs {
@@ -77,17 +77,53 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
         })
         .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
     );
-    let replay = settled
-        .replay_with_progress(scaled.volts(), rate, thresholds.clone(), probes, &mut |s| {
-            bar.set_position(s as u64);
-        })
-        .map_err(|e| {
-            let message = format!("{}: {e}", args.input.recording.display());
-            match e {
-                sagtrip::scenario::ReplayError::Simulation(_) => Failure::Run(message),
-                _ => Failure::Input(message),
+    let mut progress = |s: f64| bar.set_position(s as u64);
+    let samples = scaled.volts();
+    // With --trace the waveforms stream to the file as they are simulated (memory stays
+    // bounded however long the recording); the file appears only if the replay succeeds.
+    let replay = match (&args.trace, probes) {
+        (Some(path), Some(probes)) => {
+            let mut outcome = None;
+            let written = write_atomic(path, |w| {
+                let r = settled.replay_traced(
+                    samples,
+                    rate,
+                    thresholds.clone(),
+                    Some(TraceOut {
+                        probes,
+                        stream: Some(w),
+                    }),
+                    &mut progress,
+                );
+                let failed = r.is_err();
+                outcome = Some(r);
+                if failed {
+                    Err(std::io::Error::other("the replay failed"))
+                } else {
+                    Ok(())
+                }
+            });
+            match (outcome, written) {
+                (Some(Err(e)), _) => Err(e),
+                (_, Err(e)) => {
+                    bar.finish_and_clear();
+                    return Err(format!("cannot write trace {}: {e}", path.display()).into());
+                }
+                (Some(ok), Ok(())) => ok,
+                (None, Ok(())) => Err(sagtrip::scenario::ReplayError::Trace(
+                    "the trace file was written without a replay".into(),
+                )),
             }
-        });
+        }
+        _ => settled.replay_traced(samples, rate, thresholds.clone(), None, &mut progress),
+    }
+    .map_err(|e| {
+        let message = format!("{}: {e}", args.input.recording.display());
+        match e {
+            sagtrip::scenario::ReplayError::Simulation(_) => Failure::Run(message),
+            _ => Failure::Input(message),
+        }
+    });
     bar.finish_and_clear();
     let replay = replay?;
     if let Some(path) = &args.plot {
@@ -115,10 +151,6 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
         )?;
     }
     let wall = started.elapsed().as_secs_f64();
-    if let (Some(path), Some(trace)) = (&args.trace, &replay.trace) {
-        write_atomic(path, |w| trace.write_csv(&circuit, w))
-            .map_err(|e| format!("cannot write trace {}: {e}", path.display()))?;
-    }
     let recording = args.input.recording.display().to_string();
     let report = ReplayReport {
         name: &name,

@@ -19,6 +19,9 @@ pub enum ReplayError {
     /// The simulation failed.
     #[error(transparent)]
     Simulation(#[from] SimError),
+    /// The trace could not be written (the writer's reason).
+    #[error("cannot write the trace: {0}")]
+    Trace(String),
 }
 
 /// A trip of the load relay during a replay, in recording time.
@@ -92,20 +95,75 @@ pub struct Replay {
 }
 
 /// Collects the load relay's events and the rail minimum, and optionally a trace.
-struct ReplayWatch<'a> {
+struct ReplayWatch {
     relay: Option<usize>,
     rail: Option<usize>,
     events: Vec<DiscreteEvent>,
     min_rail: f64,
-    trace: Option<&'a mut Trace>,
+    trace: Option<Trace>,
 }
 
-impl Observer for ReplayWatch<'_> {
+/// Where a replay's probed waveforms go: the probes, and a writer to stream them to as CSV
+/// (`None` keeps them in the returned [`Replay`]).
+pub struct TraceOut<'w> {
+    /// What to record.
+    pub probes: Vec<Probe>,
+    /// Where to write them as they are simulated.
+    pub stream: Option<&'w mut dyn std::io::Write>,
+}
+
+/// The CSV header of a trace of `probes` (as [`Trace::write_csv`] writes it).
+fn write_header(
+    out: &mut dyn std::io::Write,
+    probes: &[Probe],
+    circuit: &Circuit,
+) -> std::io::Result<()> {
+    write!(out, "time_s")?;
+    for p in probes {
+        write!(out, ",{}", p.label(circuit))?;
+    }
+    writeln!(out)
+}
+
+impl ReplayWatch {
+    /// Writes the rows recorded so far, in recording time (simulation time less `shift`),
+    /// as [`Trace::write_csv`] writes rows, and forgets them; all of them with `all`, else
+    /// all but the last (the next row is spaced from it).
+    fn flush_rows(
+        &mut self,
+        out: &mut dyn std::io::Write,
+        shift: f64,
+        all: bool,
+    ) -> std::io::Result<()> {
+        let Some(trace) = self.trace.as_mut() else {
+            return Ok(());
+        };
+        let done = if all {
+            trace.time.len()
+        } else {
+            trace.time.len().saturating_sub(1)
+        };
+        for (row, t) in trace.time[..done].iter().enumerate() {
+            write!(out, "{:.9e}", t - shift)?;
+            for column in &trace.columns {
+                write!(out, ",{:.9e}", column[row])?;
+            }
+            writeln!(out)?;
+        }
+        trace.time.drain(..done);
+        for column in &mut trace.columns {
+            column.drain(..done);
+        }
+        Ok(())
+    }
+}
+
+impl Observer for ReplayWatch {
     fn step(&mut self, network: &Network, state: &SimState) {
         if let Some(node) = self.rail {
             self.min_rail = self.min_rail.min(state.node_voltage(node));
         }
-        if let Some(t) = self.trace.as_deref_mut() {
+        if let Some(t) = self.trace.as_mut() {
             t.record(network, state);
         }
     }
@@ -113,7 +171,7 @@ impl Observer for ReplayWatch<'_> {
         if Some(event.part) == self.relay {
             self.events.push(*event);
         }
-        if let Some(t) = self.trace.as_deref_mut() {
+        if let Some(t) = self.trace.as_mut() {
             t.event(network, event);
         }
     }
@@ -142,7 +200,7 @@ impl Settled {
         &self,
         sim: &mut Simulator,
         state: &mut SimState,
-        watch: &mut ReplayWatch<'_>,
+        watch: &mut ReplayWatch,
         buffer: &[f64],
         start_s: f64,
         rate: f64,
@@ -174,6 +232,33 @@ impl Settled {
         probes: Option<Vec<Probe>>,
         progress: &mut dyn FnMut(f64),
     ) -> Result<Replay, ReplayError> {
+        let trace = probes.map(|probes| TraceOut {
+            probes,
+            stream: None,
+        });
+        self.replay_traced(samples, rate, thresholds, trace, progress)
+    }
+
+    /// As [`Settled::replay_with_progress`], with the probed waveforms either kept in the
+    /// returned [`Replay`] or, when `trace.stream` is given, written to it as CSV (the
+    /// layout of [`Trace::write_csv`]) one chunk at a time, so that memory stays bounded
+    /// however long the recording; the returned trace then holds only the events.
+    pub fn replay_traced<E: std::fmt::Display>(
+        &self,
+        samples: impl Iterator<Item = Result<f64, E>>,
+        rate: f64,
+        thresholds: crate::detect::Thresholds,
+        trace: Option<TraceOut<'_>>,
+        progress: &mut dyn FnMut(f64),
+    ) -> Result<Replay, ReplayError> {
+        let (probes, mut stream) = match trace {
+            Some(t) => (Some(t.probes), t.stream),
+            None => (None, None),
+        };
+        if let (Some(out), Some(p)) = (stream.as_deref_mut(), &probes) {
+            write_header(out, p, self.sim.network().circuit())
+                .map_err(|e| ReplayError::Trace(e.to_string()))?;
+        }
         let mut sim = self.sim.clone();
         let mut state = self.state.clone();
         let before = state.stats;
@@ -184,7 +269,7 @@ impl Settled {
         let t_sim0 = next_boundary(offset, period, state.time + period);
         let mut detector =
             crate::detect::Detector::new(rate, self.rms, self.frequency_hz, thresholds);
-        let mut trace = probes.map(|p| {
+        let trace = probes.map(|p| {
             let mut t = Trace::new(p);
             t.min_interval_s = 0.25 / rate;
             t
@@ -194,7 +279,7 @@ impl Settled {
             rail: self.rail,
             events: Vec::new(),
             min_rail: f64::INFINITY,
-            trace: trace.as_mut(),
+            trace,
         };
         // The settled sine carries on up to the join, so the supply never pauses: the
         // recording's samples take over only from that rising zero crossing.
@@ -229,6 +314,11 @@ impl Settled {
                     if buffer.len() > chunk {
                         let start_s = first_index as f64 / rate + s;
                         self.play_chunk(&mut sim, &mut state, &mut watch, &buffer, start_s, rate)?;
+                        if let Some(out) = stream.as_deref_mut() {
+                            watch
+                                .flush_rows(out, s, false)
+                                .map_err(|e| ReplayError::Trace(e.to_string()))?;
+                        }
                         progress((index + 1) as f64 / rate);
                         let last = buffer[buffer.len() - 1];
                         first_index += buffer.len() - 1;
@@ -243,6 +333,12 @@ impl Settled {
         if buffer.len() >= 2 {
             let start_s = first_index as f64 / rate + shift;
             self.play_chunk(&mut sim, &mut state, &mut watch, &buffer, start_s, rate)?;
+        }
+        if let Some(out) = stream {
+            watch
+                .flush_rows(out, shift, true)
+                .map_err(|e| ReplayError::Trace(e.to_string()))?;
+            out.flush().map_err(|e| ReplayError::Trace(e.to_string()))?;
         }
         let detection = detector.finish();
         let min_rail_v = watch.min_rail.is_finite().then_some(watch.min_rail);
@@ -261,6 +357,7 @@ impl Settled {
         let mut stats = state.stats;
         stats.accepted_steps -= before.accepted_steps;
         stats.newton_iterations -= before.newton_iterations;
+        let mut trace = watch.trace.take();
         if let Some(t) = trace.as_mut() {
             for time in &mut t.time {
                 *time -= shift;
