@@ -2,6 +2,8 @@
 //! events (IEC 61000-4-30: duration within one half cycle, residual within 0.5% of the
 //! declared voltage), and recordings read back from files.
 
+mod common;
+
 use sagtrip::detect::{detect, DisturbanceKind, Thresholds};
 use sagtrip::profile::{parse_spec, DEFAULT_EDGE_S};
 use sagtrip::synth::{samples, SampleFormat, SynthOptions};
@@ -475,13 +477,11 @@ fn a_latin1_comment_in_a_csv_recording_is_read_past() {
 fn a_streamed_replay_trace_is_the_kept_one_byte_for_byte() {
     // The trace written chunk by chunk while a replay runs (bounded memory) must be the one
     // the replay would keep and write at the end.
-    let guard =
-        sagtrip::circuit_file::parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
-    let settled =
-        sagtrip::scenario::settle(&guard, &sagtrip::scenario::EventOptions::default()).unwrap();
+    let guard = common::guard();
+    let settled = common::settled_guard();
     // 2.7 s of recording: streamed in one-second chunks, then the rest.
     let volts = synthetic("interrupt:10cyc", 1.5, false);
-    let probes = sagtrip::plot::plot_probes(&guard);
+    let probes = sagtrip::plot::plot_probes(guard);
     let kept = settled
         .replay(
             volts.iter().map(|&v| Ok::<f64, String>(v)),
@@ -494,7 +494,7 @@ fn a_streamed_replay_trace_is_the_kept_one_byte_for_byte() {
     kept.trace
         .as_ref()
         .unwrap()
-        .write_csv(&guard, &mut expected)
+        .write_csv(guard, &mut expected)
         .unwrap();
     let mut streamed = Vec::new();
     let replay = settled

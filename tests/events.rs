@@ -395,7 +395,7 @@ fn replaying_a_synthesised_recording_matches_the_event_run() {
         noise: 0.0,
     };
     let volts = samples(&profile, &options);
-    let settled = sagtrip::scenario::settle(&guard, &EventOptions::default()).unwrap();
+    let settled = common::settled_guard();
     let replay = settled
         .replay(
             volts.into_iter().map(Ok::<f64, String>),
@@ -436,7 +436,7 @@ fn replay_counts_from_the_point_on_wave_onset_as_run_does() {
     // samples at 10 kHz, as `synth` writes by default; agreement within 0.2 ms.
     use sagtrip::synth::{samples, SampleFormat, SynthOptions};
     let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
-    let settled = sagtrip::scenario::settle(&guard, &EventOptions::default()).unwrap();
+    let settled = common::settled_guard();
     let options = SynthOptions {
         rms_v: 230.0,
         frequency_hz: 50.0,

@@ -101,8 +101,8 @@ name = "swell"
 event = "swell:130%:5cyc"
 "#;
     let plan = parse_plan(text, "small.toml", 50.0).unwrap();
-    let settled = settle(&guard, &EventOptions::default()).unwrap();
-    let rows = run_tests(&settled, &guard, &plan, &|| {}).unwrap();
+    let settled = common::settled_guard();
+    let rows = run_tests(settled, &guard, &plan, &|| {}).unwrap();
     assert_eq!(rows.len(), 3);
     assert_eq!(rows[0].outcome, "trips");
     // Half a cycle without supply: the sense capacitor holds the peak (RC decay, handbook:
@@ -135,7 +135,7 @@ event = "swell:130%:5cyc"
     // The phases differ: the spread is not one value three times.
     assert!(alone[2] > alone[0], "{alone:?}");
     // The same plan gives the same table.
-    let again = run_tests(&settled, &guard, &plan, &|| {}).unwrap();
+    let again = run_tests(settled, &guard, &plan, &|| {}).unwrap();
     assert_eq!(
         serde_json::to_string(&rows).unwrap(),
         serde_json::to_string(&again).unwrap()

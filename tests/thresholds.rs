@@ -13,9 +13,7 @@ use sagtrip::scenario::{settle, EventOptions};
 use sagtrip::thresholds::{find, StaticThresholds, ThresholdOptions};
 
 fn guard_thresholds() -> StaticThresholds {
-    let guard = circuit(sagtrip::builtin::REFERENCE_GUARD);
-    let settled = settle(&guard, &EventOptions::default()).unwrap();
-    find(&settled, &guard, &ThresholdOptions::default()).unwrap()
+    common::guard_thresholds().clone()
 }
 
 /// The lowest and highest voltage of node `name` over the settled cycles before an event.

@@ -74,3 +74,33 @@ pub fn simulate(text: &str, start: Start, t_end: f64, settings: Settings, probes
 pub fn settings() -> Settings {
     Settings::default()
 }
+
+/// The built-in reference guard, parsed once per test binary.
+pub fn guard() -> &'static Circuit {
+    static GUARD: std::sync::OnceLock<Circuit> = std::sync::OnceLock::new();
+    GUARD.get_or_init(|| circuit(sagtrip::builtin::REFERENCE_GUARD))
+}
+
+/// The reference guard powered up with the default options, once per test binary: the one
+/// helper through which tests settle it (each event runs on a copy).
+pub fn settled_guard() -> &'static sagtrip::scenario::Settled {
+    static SETTLED: std::sync::OnceLock<sagtrip::scenario::Settled> = std::sync::OnceLock::new();
+    SETTLED.get_or_init(|| {
+        sagtrip::scenario::settle(guard(), &sagtrip::scenario::EventOptions::default())
+            .expect("the reference guard powers up")
+    })
+}
+
+/// The reference guard's static thresholds with the default search, once per test binary.
+pub fn guard_thresholds() -> &'static sagtrip::thresholds::StaticThresholds {
+    static THRESHOLDS: std::sync::OnceLock<sagtrip::thresholds::StaticThresholds> =
+        std::sync::OnceLock::new();
+    THRESHOLDS.get_or_init(|| {
+        sagtrip::thresholds::find(
+            settled_guard(),
+            guard(),
+            &sagtrip::thresholds::ThresholdOptions::default(),
+        )
+        .expect("the reference guard's thresholds")
+    })
+}
