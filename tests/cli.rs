@@ -1425,3 +1425,23 @@ fn negative_values_reach_the_checks_that_name_them() {
         assert!(err.contains(expected), "{args:?}: {err}");
     }
 }
+
+#[test]
+fn full_steps_turns_the_cycle_skipping_off() {
+    // The same event with and without the shortcut: plain stepping skips nothing and
+    // agrees within 0.1 ms (the accuracy sagtrip states for its timings).
+    let json = |extra: &[&str]| -> serde_json::Value {
+        let mut args = vec!["run", "--event", "dip:80%:250cyc", "--json"];
+        args.extend(extra);
+        let out = sagtrip_ok(&args);
+        let text = String::from_utf8_lossy(&out.stdout).to_string();
+        serde_json::from_str(&text[..=text.rfind('}').unwrap()]).unwrap()
+    };
+    let (fast, full) = (json(&[]), json(&["--full-steps"]));
+    assert!(fast["stats"]["skipped_s"].as_f64().unwrap() > 1.0);
+    assert_eq!(full["stats"]["skipped_s"].as_f64().unwrap(), 0.0);
+    for key in ["trip_latency_ms", "restore_latency_ms"] {
+        let (a, b) = (fast[key].as_f64().unwrap(), full[key].as_f64().unwrap());
+        assert!((a - b).abs() <= 0.1, "{key}: {a} vs {b}");
+    }
+}

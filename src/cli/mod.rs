@@ -154,6 +154,10 @@ pub(crate) struct LimitArgs {
     /// to settle (default as for --power-up-limit).
     #[arg(long, allow_hyphen_values = true)]
     restore_limit: Option<String>,
+    /// Simulate every cycle: turn off the shortcuts (the skipping of repeated cycles while
+    /// a long event holds steady), to check any result against plain stepping.
+    #[arg(long)]
+    pub(crate) full_steps: bool,
 }
 
 impl LimitArgs {
@@ -169,6 +173,7 @@ impl LimitArgs {
                 }),
             settle_limit_s: time_option(self.power_up_limit.as_deref(), "power-up-limit")?,
             restore_limit_s: time_option(self.restore_limit.as_deref(), "restore-limit")?,
+            skip_steady: !self.full_steps,
             ..EventOptions::default()
         })
     }

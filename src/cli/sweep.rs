@@ -178,6 +178,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         refine: !args.no_refine,
         shard: sagtrip::sweep::Shard { index: k, count: n },
         edge_s: DEFAULT_EDGE_S,
+        full_steps: args.limits.full_steps,
     };
     let settings = study.journal_settings(&name, &circuit.title, &text, settled.rms, frequency);
     let (journal, done) = match &args.out {

@@ -24,6 +24,10 @@ pub struct StudySettings {
     pub shard: Shard,
     /// Rise and fall time of the events' edges, seconds.
     pub edge_s: f64,
+    /// Whether the points were simulated cycle by cycle with no shortcut (the settled
+    /// protector's `EventOptions::skip_steady` off); recorded so that a resume or merge
+    /// does not mix the two.
+    pub full_steps: bool,
 }
 
 impl StudySettings {
@@ -39,7 +43,7 @@ impl StudySettings {
         nominal_rms_v: f64,
         frequency_hz: f64,
     ) -> serde_json::Value {
-        serde_json::json!({
+        let mut settings = serde_json::json!({
             "circuit": circuit_name,
             "title": circuit_title,
             "circuit_digest": format!("{:016x}", fnv1a(circuit_text.as_bytes())),
@@ -52,7 +56,11 @@ impl StudySettings {
             "resolution_pct": self.resolution_pct,
             "refine": self.refine,
             "shard": self.shard.to_string(),
-        })
+        });
+        if self.full_steps {
+            settings["full_steps"] = serde_json::json!(true);
+        }
+        settings
     }
 }
 
