@@ -41,6 +41,9 @@ enum Command {
     Run(Box<RunArgs>),
     /// List the built-in IEC 61000-4-11 tests (presets) usable with --event.
     Presets,
+    /// Write one of the bundled circuits (the reference guard by default) as a commented
+    /// starting file; --list shows them.
+    New(cli::new::NewArgs),
     /// Write a supply event as a WAV recording (to drive a bench amplifier or a waveform
     /// source, or to replay).
     Synth(SynthArgs),
@@ -73,6 +76,7 @@ fn main() -> ExitCode {
             }
         }
         Command::Presets => Ok(cli::presets::presets()),
+        Command::New(args) => cli::new::new(&args),
         Command::Synth(args) => cli::synth::synth(&args),
         Command::Sweep(args) => cli::sweep::sweep(&args),
         Command::Merge(args) => cli::merge::merge(&args),

@@ -1445,3 +1445,46 @@ fn full_steps_turns_the_cycle_skipping_off() {
         assert!((a - b).abs() <= 0.1, "{key}: {a} vs {b}");
     }
 }
+
+#[test]
+fn new_writes_bundled_circuits_that_check_and_run_as_the_built_in_one() {
+    let list = String::from_utf8_lossy(&sagtrip_ok(&["new", "--list"]).stdout).to_string();
+    let names: Vec<String> = sagtrip::builtin::BUNDLED
+        .iter()
+        .map(|b| b.name.to_string())
+        .collect();
+    for name in &names {
+        assert!(list.contains(name.as_str()), "{list}");
+        let path = temp_path(&format!("new-{name}.toml"));
+        let _ = std::fs::remove_file(&path);
+        sagtrip_ok(&["new", path.to_str().unwrap(), "--from", name]);
+        sagtrip_ok(&["check", "--circuit", path.to_str().unwrap()]);
+    }
+    // The written guard gives the built-in guard's results, number for number.
+    let path = temp_path("new-guard-230v.toml");
+    let json = |args: &[&str]| -> serde_json::Value {
+        let text = String::from_utf8_lossy(&sagtrip_ok(args).stdout).to_string();
+        let mut v: serde_json::Value =
+            serde_json::from_str(&text[..=text.rfind('}').unwrap()]).unwrap();
+        for key in ["circuit", "wall_time_s"] {
+            v.as_object_mut().unwrap().remove(key);
+        }
+        v
+    };
+    let event = ["run", "--event", "dip:40%:10cyc", "--json"];
+    let built_in = json(&event);
+    let mut written_args = event.to_vec();
+    written_args.extend(["--circuit", path.to_str().unwrap()]);
+    assert_eq!(json(&written_args), built_in);
+    // It never replaces a file, and names an unknown circuit's alternatives.
+    sagtrip_fails(&["new", path.to_str().unwrap()], "exists");
+    sagtrip_fails(
+        &[
+            "new",
+            temp_path("new-x.toml").to_str().unwrap(),
+            "--from",
+            "nope",
+        ],
+        "there are: guard-230v",
+    );
+}

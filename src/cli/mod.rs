@@ -376,6 +376,7 @@ pub(crate) fn check_plot_name(path: &Path) -> Result<(), String> {
 pub(crate) mod check;
 pub(crate) mod detect;
 pub(crate) mod merge;
+pub(crate) mod new;
 pub(crate) mod presets;
 pub(crate) mod recording;
 pub(crate) mod replay;
