@@ -35,6 +35,13 @@ enum Command {
         /// Circuit file (TOML); the built-in reference guard when omitted.
         #[arg(long)]
         circuit: Option<PathBuf>,
+        /// Change a part's value as PART.FIELD=VALUE, as if written in the file; repeatable.
+        #[arg(
+            long = "set",
+            value_name = "PART.FIELD=VALUE",
+            allow_hyphen_values = true
+        )]
+        set: Vec<String>,
     },
     /// Simulate a circuit: a power-up, or with --event a supply disturbance and the
     /// protector's measured response.
@@ -67,7 +74,7 @@ enum Command {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { circuit } => cli::check::check(circuit.as_deref()),
+        Command::Check { circuit, set } => cli::check::check(circuit.as_deref(), &set),
         Command::Run(args) => {
             if args.event.is_some() || args.event_file.is_some() {
                 cli::run::run_event_command(&args)

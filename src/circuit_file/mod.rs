@@ -18,12 +18,14 @@ use toml::de::{DeTable, DeValue};
 use toml::Spanned;
 
 mod kinds;
+mod overrides;
 mod parts;
 mod reader;
 mod topology;
 mod values;
 pub use kinds::pin_names;
 use kinds::*;
+pub use overrides::{apply_overrides, parse_override, Override, OverrideError};
 use reader::*;
 
 /// One problem found in a circuit file.

@@ -77,9 +77,9 @@ pub(crate) fn part_summary(spec: &PartSpec) -> String {
     }
 }
 
-pub(crate) fn check(path: Option<&Path>) -> Outcome {
+pub(crate) fn check(path: Option<&Path>, sets: &[String]) -> Outcome {
     let mut out = String::new();
-    let (circuit, name) = load_circuit(path)?;
+    let (circuit, name) = load_circuit(path, sets)?;
     say!(out, "{name}: valid");
     if !circuit.title.is_empty() {
         say!(out, "title: {}", circuit.title);

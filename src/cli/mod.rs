@@ -181,8 +181,11 @@ impl LimitArgs {
 
 /// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
 /// to report it under.
-pub(crate) fn load_circuit(path: Option<&Path>) -> Result<(Circuit, String), String> {
-    load_circuit_and_text(path).map(|(circuit, name, _)| (circuit, name))
+pub(crate) fn load_circuit(
+    path: Option<&Path>,
+    sets: &[String],
+) -> Result<(Circuit, String), String> {
+    load_circuit_and_text(path, sets).map(|(circuit, name, _)| (circuit, name))
 }
 
 /// The largest circuit, event or plan file read, bytes: a hand-written file is a few
@@ -204,16 +207,30 @@ pub(crate) fn read_text(path: &Path, what: &str) -> Result<String, String> {
 }
 
 /// As [`load_circuit`], also returning the file's text (to build tolerance cases from).
+/// Each `--set PART.FIELD=VALUE` is written into the text before it is read, so it is
+/// checked exactly as if it were in the file; the circuit's name then lists them, so every
+/// report does.
 pub(crate) fn load_circuit_and_text(
     path: Option<&Path>,
+    sets: &[String],
 ) -> Result<(Circuit, String, String), String> {
-    let (text, name) = match path {
+    let (text, mut name) = match path {
         Some(path) => (read_text(path, "circuit file")?, path.display().to_string()),
         None => (
             builtin::REFERENCE_GUARD.to_string(),
             builtin::REFERENCE_GUARD_NAME.to_string(),
         ),
     };
+    let overrides = sets
+        .iter()
+        .map(|s| sagtrip::circuit_file::parse_override(s).map_err(|e| format!("--set {s}: {e}")))
+        .collect::<Result<Vec<_>, _>>()?;
+    let text = sagtrip::circuit_file::apply_overrides(&text, &overrides)
+        .map_err(|e| format!("--set: {name}: {e}"))?;
+    if !overrides.is_empty() {
+        let list: Vec<String> = overrides.iter().map(ToString::to_string).collect();
+        name = format!("{name} with --set {}", list.join(", "));
+    }
     let circuit = parse_circuit(&text, &name).map_err(|e| e.to_string())?;
     Ok((circuit, name, text))
 }

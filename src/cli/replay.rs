@@ -11,6 +11,15 @@ pub(crate) struct ReplayArgs {
     /// Circuit file (TOML); the built-in reference guard when omitted.
     #[arg(long)]
     circuit: Option<PathBuf>,
+    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
+    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
+    /// written in the file; reports name the circuit with its changes.
+    #[arg(
+        long = "set",
+        value_name = "PART.FIELD=VALUE",
+        allow_hyphen_values = true
+    )]
+    set: Vec<String>,
     /// Declared supply, e.g. 230V/50Hz (default: the circuit's mains source).
     #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
@@ -39,7 +48,7 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
             args.circuit.as_deref(),
         ],
     )?;
-    let (circuit, name) = load_circuit(args.circuit.as_deref())?;
+    let (circuit, name) = load_circuit(args.circuit.as_deref(), &args.set)?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let started = Instant::now();
     let settled =

@@ -7,6 +7,15 @@ pub(crate) struct SweepArgs {
     /// Circuit file (TOML); the built-in reference guard when omitted.
     #[arg(long)]
     circuit: Option<PathBuf>,
+    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
+    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
+    /// written in the file; reports name the circuit with its changes.
+    #[arg(
+        long = "set",
+        value_name = "PART.FIELD=VALUE",
+        allow_hyphen_values = true
+    )]
+    set: Vec<String>,
     /// Dip residual levels in % of nominal, FROM:TO:STEP.
     #[arg(long, default_value = "0:90:10", allow_hyphen_values = true)]
     levels: String,
@@ -150,7 +159,7 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
         ],
         &[args.circuit.as_deref()],
     )?;
-    let (circuit, name, text) = load_circuit_and_text(args.circuit.as_deref())?;
+    let (circuit, name, text) = load_circuit_and_text(args.circuit.as_deref(), &args.set)?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let (levels, phases) = axes(args)?;
     let (k, n) = args
