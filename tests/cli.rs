@@ -32,6 +32,14 @@ fn sagtrip_fails(args: &[&str], expected: &str) -> String {
     err
 }
 
+/// Runs sagtrip and requires exit code 2 (an input mistake) with `expected` in the message.
+fn refused_as_input(args: &[&str], expected: &str) {
+    let out = sagtrip(args);
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+    assert!(err.contains(expected), "{args:?}: {err}");
+}
+
 fn temp_path(name: &str) -> PathBuf {
     let dir = std::env::temp_dir().join(format!("sagtrip-cli-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
@@ -1146,10 +1154,7 @@ fn absurd_spans_and_counts_are_refused_at_parse_time() {
             "the frequency is allowed from 1 Hz to 1000 Hz",
         ),
     ] {
-        let out = sagtrip(&args);
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
-        assert!(err.contains(expected), "{args:?}: {err}");
+        refused_as_input(&args, expected);
     }
 }
 
@@ -1240,10 +1245,7 @@ fn nonsense_thresholds_scales_harmonics_and_phases_are_refused() {
             "--durations",
         ),
     ] {
-        let out = sagtrip(&args);
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
-        assert!(err.contains(expected), "{args:?}: {err}");
+        refused_as_input(&args, expected);
     }
 }
 
@@ -1325,10 +1327,7 @@ fn events_that_last_no_time_are_refused() {
             "the shortest event lasts at least",
         ),
     ] {
-        let out = sagtrip(&args);
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
-        assert!(err.contains(expected), "{args:?}: {err}");
+        refused_as_input(&args, expected);
     }
     assert!(!w.exists(), "no recording is written for a refused event");
 }
@@ -1363,10 +1362,7 @@ fn a_recording_too_large_to_build_is_refused() {
             "at most 100000000",
         ),
     ] {
-        let out = sagtrip(&args);
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
-        assert!(err.contains(expected), "{args:?}: {err}");
+        refused_as_input(&args, expected);
     }
 }
 
@@ -1419,10 +1415,7 @@ fn negative_values_reach_the_checks_that_name_them() {
             "--channel",
         ),
     ] {
-        let out = sagtrip(&args);
-        let err = String::from_utf8_lossy(&out.stderr);
-        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
-        assert!(err.contains(expected), "{args:?}: {err}");
+        refused_as_input(&args, expected);
     }
 }
 
