@@ -5,7 +5,6 @@
 mod cli;
 
 use std::io::Write as _;
-use std::path::PathBuf;
 use std::process::ExitCode;
 
 use clap::{Parser, Subcommand};
@@ -31,18 +30,7 @@ struct Cli {
 #[derive(Subcommand)]
 enum Command {
     /// Validate a circuit file and list its parts, nodes and parameter sets.
-    Check {
-        /// Circuit file (TOML); the built-in reference guard when omitted.
-        #[arg(long)]
-        circuit: Option<PathBuf>,
-        /// Change a part's value as PART.FIELD=VALUE, as if written in the file; repeatable.
-        #[arg(
-            long = "set",
-            value_name = "PART.FIELD=VALUE",
-            allow_hyphen_values = true
-        )]
-        set: Vec<String>,
-    },
+    Check(cli::CircuitArgs),
     /// Simulate a circuit: a power-up, or with --event a supply disturbance and the
     /// protector's measured response.
     Run(Box<RunArgs>),
@@ -74,7 +62,7 @@ enum Command {
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
-        Command::Check { circuit, set } => cli::check::check(circuit.as_deref(), &set),
+        Command::Check(args) => cli::check::check(&args),
         Command::Run(args) => {
             if args.event.is_some() || args.event_file.is_some() {
                 cli::run::run_event_command(&args)

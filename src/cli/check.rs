@@ -77,9 +77,9 @@ pub(crate) fn part_summary(spec: &PartSpec) -> String {
     }
 }
 
-pub(crate) fn check(path: Option<&Path>, sets: &[String]) -> Outcome {
+pub(crate) fn check(args: &CircuitArgs) -> Outcome {
     let mut out = String::new();
-    let (circuit, name) = load_circuit(path, sets)?;
+    let (circuit, name) = args.load()?;
     say!(out, "{name}: valid");
     if !circuit.title.is_empty() {
         say!(out, "title: {}", circuit.title);

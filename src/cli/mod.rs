@@ -179,13 +179,41 @@ impl LimitArgs {
     }
 }
 
-/// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
-/// to report it under.
-pub(crate) fn load_circuit(
-    path: Option<&Path>,
-    sets: &[String],
-) -> Result<(Circuit, String), String> {
-    load_circuit_and_text(path, sets).map(|(circuit, name, _)| (circuit, name))
+/// The circuit a command works on: its file (or the built-in reference guard) and the
+/// what-if values changed in it.
+#[derive(Args)]
+pub(crate) struct CircuitArgs {
+    /// Circuit file (TOML); the built-in reference guard when omitted.
+    #[arg(long)]
+    pub(crate) circuit: Option<PathBuf>,
+    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
+    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
+    /// written in the file; reports name the circuit with its changes.
+    #[arg(
+        long = "set",
+        value_name = "PART.FIELD=VALUE",
+        allow_hyphen_values = true
+    )]
+    pub(crate) set: Vec<String>,
+}
+
+impl CircuitArgs {
+    /// The circuit file, if one was given.
+    pub(crate) fn path(&self) -> Option<&Path> {
+        self.circuit.as_deref()
+    }
+
+    /// The circuit and the name to report it under.
+    pub(crate) fn load(&self) -> Result<(Circuit, String), String> {
+        self.load_with_text()
+            .map(|(circuit, name, _)| (circuit, name))
+    }
+
+    /// As [`CircuitArgs::load`], also returning the text read (to build tolerance cases
+    /// from).
+    pub(crate) fn load_with_text(&self) -> Result<(Circuit, String, String), String> {
+        load_circuit_and_text(self.path(), &self.set)
+    }
 }
 
 /// The largest circuit, event or plan file read, bytes: a hand-written file is a few
@@ -206,11 +234,11 @@ pub(crate) fn read_text(path: &Path, what: &str) -> Result<String, String> {
     std::fs::read_to_string(path).map_err(cannot)
 }
 
-/// As [`load_circuit`], also returning the file's text (to build tolerance cases from).
-/// Each `--set PART.FIELD=VALUE` is written into the text before it is read, so it is
+/// Reads the circuit at `path`, or the built-in reference guard; returns it with the name
+/// to report it under and the text read. Each `--set PART.FIELD=VALUE` is written into the text before it is read, so it is
 /// checked exactly as if it were in the file; the circuit's name then lists them, so every
 /// report does.
-pub(crate) fn load_circuit_and_text(
+fn load_circuit_and_text(
     path: Option<&Path>,
     sets: &[String],
 ) -> Result<(Circuit, String, String), String> {

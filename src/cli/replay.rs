@@ -8,18 +8,8 @@ use sagtrip::scenario::{ReplayReport, TraceOut};
 pub(crate) struct ReplayArgs {
     #[command(flatten)]
     input: RecordingInput,
-    /// Circuit file (TOML); the built-in reference guard when omitted.
-    #[arg(long)]
-    circuit: Option<PathBuf>,
-    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
-    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
-    /// written in the file; reports name the circuit with its changes.
-    #[arg(
-        long = "set",
-        value_name = "PART.FIELD=VALUE",
-        allow_hyphen_values = true
-    )]
-    set: Vec<String>,
+    #[command(flatten)]
+    circuit: CircuitArgs,
     /// Declared supply, e.g. 230V/50Hz (default: the circuit's mains source).
     #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
@@ -43,12 +33,9 @@ pub(crate) fn replay_command(args: &ReplayArgs) -> Outcome {
             ("--trace", args.trace.as_deref()),
             ("--plot", args.plot.as_deref()),
         ],
-        &[
-            Some(args.input.recording.as_path()),
-            args.circuit.as_deref(),
-        ],
+        &[Some(args.input.recording.as_path()), args.circuit.path()],
     )?;
-    let (circuit, name) = load_circuit(args.circuit.as_deref(), &args.set)?;
+    let (circuit, name) = args.circuit.load()?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let started = Instant::now();
     let settled =

@@ -4,18 +4,8 @@ use super::*;
 
 #[derive(Args)]
 pub(crate) struct RunArgs {
-    /// Circuit file (TOML); the built-in reference guard when omitted.
-    #[arg(long)]
-    pub(crate) circuit: Option<PathBuf>,
-    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
-    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
-    /// written in the file; reports name the circuit with its changes.
-    #[arg(
-        long = "set",
-        value_name = "PART.FIELD=VALUE",
-        allow_hyphen_values = true
-    )]
-    pub(crate) set: Vec<String>,
+    #[command(flatten)]
+    pub(crate) circuit: CircuitArgs,
     /// Simulated time, e.g. 200ms, 1s (default: 2 s for a circuit with a relay, else 10
     /// mains cycles, or 100 ms without a sine source).
     #[arg(long, allow_hyphen_values = true)]
@@ -86,7 +76,7 @@ pub(crate) enum StartArg {
 pub(crate) fn run(args: &RunArgs) -> Outcome {
     refuse_overwriting_inputs(
         &[("--trace", args.trace.as_deref())],
-        &[args.circuit.as_deref()],
+        &[args.circuit.path()],
     )?;
     for (given, option) in [
         (args.plot.is_some(), "--plot"),
@@ -102,7 +92,7 @@ pub(crate) fn run(args: &RunArgs) -> Outcome {
             return Err(format!("{option} goes with --event or --event-file").into());
         }
     }
-    let (circuit, name) = load_circuit(args.circuit.as_deref(), &args.set)?;
+    let (circuit, name) = args.circuit.load()?;
     let mut settings = Settings::default();
     if let Some(step) = time_option(args.max_step.as_deref(), "max-step")? {
         settings.max_step_s = step;
@@ -176,7 +166,7 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
             ("--trace", args.trace.as_deref()),
             ("--plot", args.plot.as_deref()),
         ],
-        &[args.circuit.as_deref(), args.event_file.as_deref()],
+        &[args.circuit.path(), args.event_file.as_deref()],
     )?;
     for (given, option) in [
         (args.duration.is_some(), "--duration"),
@@ -191,7 +181,7 @@ pub(crate) fn run_event_command(args: &RunArgs) -> Outcome {
             .into());
         }
     }
-    let (circuit, name) = load_circuit(args.circuit.as_deref(), &args.set)?;
+    let (circuit, name) = args.circuit.load()?;
     let mut options = EventOptions {
         mains: args.mains.clone(),
         relay: args.relay.clone(),

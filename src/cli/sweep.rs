@@ -4,18 +4,8 @@ use super::*;
 
 #[derive(Args)]
 pub(crate) struct SweepArgs {
-    /// Circuit file (TOML); the built-in reference guard when omitted.
-    #[arg(long)]
-    circuit: Option<PathBuf>,
-    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
-    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
-    /// written in the file; reports name the circuit with its changes.
-    #[arg(
-        long = "set",
-        value_name = "PART.FIELD=VALUE",
-        allow_hyphen_values = true
-    )]
-    set: Vec<String>,
+    #[command(flatten)]
+    circuit: CircuitArgs,
     /// Dip residual levels in % of nominal, FROM:TO:STEP.
     #[arg(long, default_value = "0:90:10", allow_hyphen_values = true)]
     levels: String,
@@ -157,9 +147,9 @@ pub(crate) fn sweep(args: &SweepArgs) -> Outcome {
             ("--out", args.out.as_deref()),
             ("--plot", args.plot.as_deref()),
         ],
-        &[args.circuit.as_deref()],
+        &[args.circuit.path()],
     )?;
-    let (circuit, name, text) = load_circuit_and_text(args.circuit.as_deref(), &args.set)?;
+    let (circuit, name, text) = args.circuit.load_with_text()?;
     let options = args.limits.options(args.nominal.as_deref())?;
     let (levels, phases) = axes(args)?;
     let (k, n) = args

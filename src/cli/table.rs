@@ -4,18 +4,8 @@ use super::*;
 
 #[derive(Args)]
 pub(crate) struct TableArgs {
-    /// Circuit file (TOML); the built-in reference guard when omitted.
-    #[arg(long)]
-    circuit: Option<PathBuf>,
-    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
-    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
-    /// written in the file; reports name the circuit with its changes.
-    #[arg(
-        long = "set",
-        value_name = "PART.FIELD=VALUE",
-        allow_hyphen_values = true
-    )]
-    set: Vec<String>,
+    #[command(flatten)]
+    circuit: CircuitArgs,
     /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
     #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
@@ -102,10 +92,9 @@ pub(crate) fn table_command(args: &TableArgs) -> Outcome {
             ("--markdown", args.markdown.as_deref()),
             ("--html", args.html.as_deref()),
         ],
-        &[args.circuit.as_deref(), args.plan.as_deref()],
+        &[args.circuit.path(), args.plan.as_deref()],
     )?;
-    let (circuit, name, text_of_circuit) =
-        load_circuit_and_text(args.circuit.as_deref(), &args.set)?;
+    let (circuit, name, text_of_circuit) = args.circuit.load_with_text()?;
     let options = args.limits.options(args.nominal.as_deref())?;
     // The plan first: a mistake in it is reported before any simulation.
     let plan = plan_of(args, &options, &circuit)?;

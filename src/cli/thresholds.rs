@@ -4,18 +4,8 @@ use super::*;
 
 #[derive(Args)]
 pub(crate) struct ThresholdsArgs {
-    /// Circuit file (TOML); the built-in reference guard when omitted.
-    #[arg(long)]
-    circuit: Option<PathBuf>,
-    /// Change a part's value without editing the file, as PART.FIELD=VALUE (e.g.
-    /// `c_delay.capacitance=22u`, `mains.sine.frequency=60Hz`); repeatable. Checked as if
-    /// written in the file; reports name the circuit with its changes.
-    #[arg(
-        long = "set",
-        value_name = "PART.FIELD=VALUE",
-        allow_hyphen_values = true
-    )]
-    set: Vec<String>,
+    #[command(flatten)]
+    circuit: CircuitArgs,
     /// Nominal supply, e.g. 230V/50Hz (default: the circuit's mains source).
     #[arg(long, allow_hyphen_values = true)]
     nominal: Option<String>,
@@ -41,11 +31,8 @@ pub(crate) struct ThresholdsArgs {
 
 pub(crate) fn thresholds_command(args: &ThresholdsArgs) -> Outcome {
     use sagtrip::thresholds::{find, ThresholdOptions, ThresholdsReport};
-    refuse_overwriting_inputs(
-        &[("--plot", args.plot.as_deref())],
-        &[args.circuit.as_deref()],
-    )?;
-    let (circuit, name) = load_circuit(args.circuit.as_deref(), &args.set)?;
+    refuse_overwriting_inputs(&[("--plot", args.plot.as_deref())], &[args.circuit.path()])?;
+    let (circuit, name) = args.circuit.load()?;
     let options = args.limits.options(args.nominal.as_deref())?;
     if let Some(path) = &args.plot {
         check_plot_name(path)?;
