@@ -39,44 +39,30 @@ impl Bundled {
     }
 }
 
+/// A bundled example by its file name in `examples/`.
+macro_rules! example {
+    ($name:literal) => {
+        Bundled {
+            name: $name,
+            text: include_str!(concat!("../examples/", $name, ".toml")),
+        }
+    };
+}
+
 /// Every bundled circuit: the examples of the project, the reference guard first.
 pub const BUNDLED: &[Bundled] = &[
     Bundled {
         name: "guard-230v",
         text: REFERENCE_GUARD,
     },
-    Bundled {
-        name: "guard-230v-hysteresis",
-        text: include_str!("../examples/guard-230v-hysteresis.toml"),
-    },
-    Bundled {
-        name: "guard-230v-tolerances",
-        text: include_str!("../examples/guard-230v-tolerances.toml"),
-    },
-    Bundled {
-        name: "guard-230v-beeper",
-        text: include_str!("../examples/guard-230v-beeper.toml"),
-    },
-    Bundled {
-        name: "guard-120v-60hz",
-        text: include_str!("../examples/guard-120v-60hz.toml"),
-    },
-    Bundled {
-        name: "transformer-supply",
-        text: include_str!("../examples/transformer-supply.toml"),
-    },
-    Bundled {
-        name: "bridge-rectifier",
-        text: include_str!("../examples/bridge-rectifier.toml"),
-    },
-    Bundled {
-        name: "half-wave-rectifier",
-        text: include_str!("../examples/half-wave-rectifier.toml"),
-    },
-    Bundled {
-        name: "rc-step",
-        text: include_str!("../examples/rc-step.toml"),
-    },
+    example!("guard-230v-hysteresis"),
+    example!("guard-230v-tolerances"),
+    example!("guard-230v-beeper"),
+    example!("guard-120v-60hz"),
+    example!("transformer-supply"),
+    example!("bridge-rectifier"),
+    example!("half-wave-rectifier"),
+    example!("rc-step"),
 ];
 
 /// The bundled circuit of this name.

@@ -212,6 +212,12 @@ fn number_prefix_len(s: &str) -> usize {
     i
 }
 
+/// `v` rounded to 9 significant digits, so that it prints in its shortest form without
+/// binary noise (`11`, not `10.999999999999998`).
+pub fn significant(v: f64) -> f64 {
+    format!("{v:.8e}").parse().unwrap_or(v)
+}
+
 /// Reads a phase angle in degrees, the one grammar of every option, event spec and file:
 /// a finite number, optionally followed by `deg` (`90`, `90deg`, `-45.5 deg`). `None` for
 /// anything else.

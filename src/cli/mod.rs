@@ -17,7 +17,7 @@ use sagtrip::probe::{Probe, Trace};
 use sagtrip::profile::{iec_presets, resolve, DEFAULT_EDGE_S};
 use sagtrip::scenario::{find_mains, run_event, EventOptions, EventReport};
 use sagtrip::summary::RunReport;
-use sagtrip::units::{parse_value, Engineering, Quantity};
+use sagtrip::units::{parse_value, significant, Engineering, Quantity};
 
 /// Appends a line to a report string (writing to a String cannot fail).
 macro_rules! say {
@@ -387,11 +387,6 @@ pub(crate) fn write_plot(
         }
         _ => check_plot_name(path),
     }
-}
-
-/// `v` rounded to 9 significant digits, printed in its shortest form (no binary noise).
-pub(crate) fn significant(v: f64) -> f64 {
-    format!("{v:.8e}").parse().unwrap_or(v)
 }
 
 /// A comma-separated list of phase angles in degrees (`0,90deg,180`), for option `--NAME`.

@@ -51,12 +51,12 @@ pub enum ScenarioError {
     /// connected its load path (normally-open contact made with the armature picked up), or
     /// the circuit never repeated cycle after cycle. No event can be judged from there.
     #[error(
-        "{} within the power-up limit of {}",
+        "{} within the power-up limit of {} s",
         match relay {
             Some(r) => format!("relay `{r}` did not connect the load (pick up and make its normally-open contact)"),
             None => "the circuit did not settle (repeat cycle after cycle)".to_string(),
         },
-        format!("{} s", format!("{limit_s:.8e}").parse::<f64>().unwrap_or(*limit_s))
+        crate::units::significant(*limit_s)
     )]
     NotSettled {
         /// The relay that did not connect the load, if that was the reason.
