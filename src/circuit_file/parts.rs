@@ -416,25 +416,20 @@ impl Reader<'_> {
             );
             return None;
         }
-        let build = match kind_named(kind)?.build {
-            Build::Passive => Self::passive_spec,
-            Build::Semiconductor => Self::semiconductor_spec,
-            Build::Control => Self::control_spec,
-        };
-        build(self, kind, values, fields, waveform, name_span, path)
+        match kind_named(kind)?.build {
+            Build::Passive => Self::passive_spec(kind, values, fields, waveform),
+            Build::Semiconductor => self.semiconductor_spec(kind, values, fields, name_span, path),
+            Build::Control => self.control_spec(kind, values, fields, name_span, path),
+        }
     }
 
-    /// The model specification of a part of this family: resistors, capacitors, inductors, transformers and sources. `None` (with the problem
-    /// noted) when its values contradict each other.
-    #[allow(clippy::too_many_arguments)]
+    /// The model specification of a part of this family: resistors, capacitors, inductors,
+    /// transformers and sources (`None` for a source without its waveform, already noted).
     pub(super) fn passive_spec(
-        &mut self,
         kind: &str,
         values: &HashMap<String, Located>,
         fields: &[Field],
         waveform: Option<Waveform>,
-        _name_span: Range<usize>,
-        _path: &str,
     ) -> Option<PartSpec> {
         let get = |n: &str| value_or_default(values, fields, n);
         let opt = |n: &str| values.get(n).map(|l| l.value);
@@ -466,13 +461,11 @@ impl Reader<'_> {
 
     /// The model specification of a part of this family: diodes, bridges, LEDs, MOSFETs and bipolar transistors. `None` (with the problem
     /// noted) when its values contradict each other.
-    #[allow(clippy::too_many_arguments)]
     pub(super) fn semiconductor_spec(
         &mut self,
         kind: &str,
         values: &HashMap<String, Located>,
         fields: &[Field],
-        _waveform: Option<Waveform>,
         name_span: Range<usize>,
         path: &str,
     ) -> Option<PartSpec> {
@@ -552,13 +545,11 @@ impl Reader<'_> {
 
     /// The model specification of a part of this family: switches, comparators, regulators, relays and timers. `None` (with the problem
     /// noted) when its values contradict each other.
-    #[allow(clippy::too_many_arguments)]
     pub(super) fn control_spec(
         &mut self,
         kind: &str,
         values: &HashMap<String, Located>,
         fields: &[Field],
-        _waveform: Option<Waveform>,
         name_span: Range<usize>,
         path: &str,
     ) -> Option<PartSpec> {
