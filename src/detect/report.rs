@@ -26,22 +26,25 @@ pub struct DetectionReport<'a> {
 }
 
 impl DetectionReport<'_> {
-    /// The measured frequency over the 10 s intervals: (mean, min, max), hertz.
-    fn frequency_spread(&self) -> (f64, f64, f64) {
+    /// The measured frequency over the 10 s intervals: (mean, min, max), hertz; `None`
+    /// when no interval of undisturbed cycles was measured.
+    fn frequency_spread(&self) -> Option<(f64, f64, f64)> {
         let frequencies = self.detection.frequency_intervals();
+        if frequencies.is_empty() {
+            return None;
+        }
         let (min, max) = frequencies
             .iter()
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &f| {
                 (a.min(f), b.max(f))
             });
-        let mean = frequencies.iter().sum::<f64>() / frequencies.len().max(1) as f64;
-        (mean, min, max)
+        let mean = frequencies.iter().sum::<f64>() / frequencies.len() as f64;
+        Some((mean, min, max))
     }
 
     /// The report as one JSON object.
     pub fn json(&self) -> serde_json::Value {
         let d = self.detection;
-        let (mean, min, max) = self.frequency_spread();
         serde_json::json!({
             "recording": self.recording,
             "format": self.format,
@@ -51,8 +54,9 @@ impl DetectionReport<'_> {
             "declared_from": self.declared_from,
             "duration_s": d.duration_s,
             "samples": d.samples,
-            "measured_frequency_hz": (!self.detection.frequency_intervals().is_empty())
-                .then(|| serde_json::json!({ "mean": mean, "min": min, "max": max })),
+            "measured_frequency_hz": self.frequency_spread().map(|(mean, min, max)| {
+                serde_json::json!({ "mean": mean, "min": min, "max": max })
+            }),
             "events": d.events,
         })
     }
@@ -61,7 +65,6 @@ impl DetectionReport<'_> {
     pub fn text(&self) -> String {
         let mut out = String::new();
         let d = self.detection;
-        let (fmean, fmin, fmax) = self.frequency_spread();
         say!(
             out,
             "{}: {}, {:.3} s",
@@ -70,13 +73,12 @@ impl DetectionReport<'_> {
             d.duration_s
         );
         say!(out, "scale: {}", self.scale);
-        let measured = if self.detection.frequency_intervals().is_empty() {
-            "measured frequency: no 10 s interval of undisturbed cycles".to_string()
-        } else {
-            format!(
+        let measured = match self.frequency_spread() {
+            None => "measured frequency: no 10 s interval of undisturbed cycles".to_string(),
+            Some((fmean, fmin, fmax)) => format!(
                 "measured frequency {fmean:.3} Hz (10 s intervals from {fmin:.3} to {fmax:.3} Hz, \
                  cycles near events left out)"
-            )
+            ),
         };
         say!(
             out,

@@ -20,6 +20,26 @@ pub struct RecordingPlot<'a> {
     pub tripped: Option<Vec<bool>>,
 }
 
+impl RecordingPlot<'_> {
+    /// Whether the protector tripped on event `k` (false when not replayed).
+    fn tripped_on(&self, k: usize) -> bool {
+        self.tripped
+            .as_ref()
+            .and_then(|t| t.get(k))
+            .copied()
+            .unwrap_or(false)
+    }
+
+    /// Urms(1/2) over time: (seconds, percent of the declared voltage).
+    fn urms_percent(&self) -> Vec<(f64, f64)> {
+        self.detection
+            .half_cycles
+            .iter()
+            .map(|h| (h.time_s, 100.0 * h.rms_v / self.declared_v))
+            .collect()
+    }
+}
+
 /// A faint vertical line from 0 to `y_max` at each of `times`, in `colour`: instants of the
 /// protector drawn under the Urms(1/2) trace.
 fn instants(
@@ -45,14 +65,9 @@ fn draw_recording<DB: DrawingBackend>(
         .titled(&p.title, ("sans-serif", title_size(&p.title, 1100)))
         .map_err(e)?;
     let (top, bottom) = root.split_vertically(430);
-    let y_max = p
-        .detection
-        .half_cycles
-        .iter()
-        .map(|h| 100.0 * h.rms_v / p.declared_v)
-        .fold(120.0_f64, f64::max)
-        + 5.0;
-    draw_urms_panel(&top, p, y_max)?;
+    let urms = p.urms_percent();
+    let y_max = urms.iter().map(|q| q.1).fold(120.0_f64, f64::max) + 5.0;
+    draw_urms_panel(&top, p, &urms, y_max)?;
     draw_iti_panel(&bottom, p, y_max)?;
     root.present().map_err(e)?;
     Ok(())
@@ -63,17 +78,11 @@ fn draw_recording<DB: DrawingBackend>(
 fn draw_urms_panel<DB: DrawingBackend>(
     top: &DrawingArea<DB, Shift>,
     p: &RecordingPlot<'_>,
+    points: &[(f64, f64)],
     y_max: f64,
 ) -> Result<(), PlotError> {
     use crate::detect::DisturbanceKind as K;
     let e = |e: DrawingAreaErrorKind<DB::ErrorType>| PlotError(format!("{e:?}"));
-    // Urms(1/2) over time.
-    let points: Vec<(f64, f64)> = p
-        .detection
-        .half_cycles
-        .iter()
-        .map(|h| (h.time_s, 100.0 * h.rms_v / p.declared_v))
-        .collect();
     let times: Vec<f64> = points.iter().map(|q| q.0).collect();
     let values: Vec<f64> = points.iter().map(|q| q.1).collect();
     let thinned = decimate(&times, &values, 4000);
@@ -100,12 +109,7 @@ fn draw_urms_panel<DB: DrawingBackend>(
             K::Dip => RGBColor(200, 215, 250),
             K::Interruption => RGBColor(220, 200, 240),
         };
-        let tripped = p
-            .tripped
-            .as_ref()
-            .and_then(|t| t.get(k))
-            .copied()
-            .unwrap_or(false);
+        let tripped = p.tripped_on(k);
         chart
             .draw_series(std::iter::once(Rectangle::new(
                 [(ev.start_s, 0.0), (ev.start_s + ev.duration_s, y_max)],
@@ -213,15 +217,7 @@ fn draw_iti_panel<DB: DrawingBackend>(
         .events
         .iter()
         .enumerate()
-        .map(|(k, ev)| {
-            let tripped = p
-                .tripped
-                .as_ref()
-                .and_then(|t| t.get(k))
-                .copied()
-                .unwrap_or(false);
-            (ev.duration_s.max(1e-3), ev.level_pct, tripped)
-        })
+        .map(|(k, ev)| (ev.duration_s.max(1e-3), ev.level_pct, p.tripped_on(k)))
         .collect();
     chart
         .draw_series(
