@@ -72,3 +72,40 @@ fn reference_guard_small_map(bencher: divan::Bencher) {
         divan::black_box(points.len())
     });
 }
+
+/// One event run of a guard: power-up from rest until settled, `interrupt:10cyc`, then the
+/// reconnection delay until settled again; with or without the multi-rate shortcuts.
+fn one_event(bencher: divan::Bencher, circuit: &sagtrip::circuit::Circuit, skip_steady: bool) {
+    use sagtrip::scenario::{run_event, EventOptions};
+    let profile =
+        sagtrip::profile::parse_spec("interrupt:10cyc", sagtrip::profile::DEFAULT_EDGE_S).unwrap();
+    let options = EventOptions {
+        skip_steady,
+        ..EventOptions::default()
+    };
+    bencher.bench_local(|| {
+        let run = run_event(circuit, &profile, &options).unwrap();
+        divan::black_box(run.stats.accepted_steps)
+    });
+}
+
+/// The reference guard's one-event run (2.34 s of power-up, the event, 0.72 s of delay).
+#[divan::bench(sample_count = 10)]
+fn reference_guard_interrupt(bencher: divan::Bencher) {
+    let guard = parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+    one_event(bencher, &guard, true);
+}
+
+/// The same with every cycle stepped in full (`--full-steps`).
+#[divan::bench(sample_count = 10)]
+fn reference_guard_interrupt_full_steps(bencher: divan::Bencher) {
+    let guard = parse_circuit(sagtrip::builtin::REFERENCE_GUARD, "guard").unwrap();
+    one_event(bencher, &guard, false);
+}
+
+/// The compressor guard's one-event run: about 196 s of power-up delay and 196 s of
+/// reconnection delay, followed by envelope steps.
+#[divan::bench(sample_count = 3)]
+fn compressor_guard_interrupt(bencher: divan::Bencher) {
+    one_event(bencher, &load("guard-230v-compressor.toml"), true);
+}

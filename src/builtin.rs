@@ -58,6 +58,7 @@ pub const BUNDLED: &[Bundled] = &[
     example!("guard-230v-hysteresis"),
     example!("guard-230v-tolerances"),
     example!("guard-230v-beeper"),
+    example!("guard-230v-compressor"),
     example!("guard-120v-60hz"),
     example!("transformer-supply"),
     example!("bridge-rectifier"),

@@ -132,6 +132,10 @@ pub struct Trace {
     pub keep_last_s: Option<f64>,
 }
 
+/// A row of [`Trace::filled_rows`]: its time, the recorded row whose values it carries,
+/// and, inside a skip, the skip's index and which of its cycles (from 1) it belongs to.
+type FilledRow = (f64, usize, Option<(usize, usize)>);
+
 /// Rows a trace with [`Trace::keep_last_s`] holds before it drops old ones.
 const KEEP_SLACK_ROWS: usize = 4096;
 
@@ -145,6 +149,9 @@ pub struct Skip {
     pub period_s: f64,
     /// How many whole cycles were skipped.
     pub cycles: usize,
+    /// An envelope step, not a repeat: the skipped cycles drift from the cycle before the
+    /// skip toward the one after it.
+    pub drift: bool,
 }
 
 impl Trace {
@@ -194,11 +201,23 @@ impl Trace {
     /// Notes that `cycles` whole cycles of length `period_s` were skipped at `at_s` (the
     /// last recorded cycle repeats over them).
     pub fn note_skip(&mut self, at_s: f64, period_s: f64, cycles: usize) {
+        self.push_skip(at_s, period_s, cycles, false);
+    }
+
+    /// Notes that an envelope step jumped `cycles` whole cycles of length `period_s` at
+    /// `at_s`: the last recorded cycle fills them, shifted step by step toward the cycle
+    /// simulated after the jump (see [`Skip::drift`]).
+    pub fn note_jump(&mut self, at_s: f64, period_s: f64, cycles: usize) {
+        self.push_skip(at_s, period_s, cycles, true);
+    }
+
+    fn push_skip(&mut self, at_s: f64, period_s: f64, cycles: usize, drift: bool) {
         if cycles > 0 {
             self.skips.push(Skip {
                 at_s,
                 period_s,
                 cycles,
+                drift,
             });
         }
     }
@@ -207,44 +226,76 @@ impl Trace {
     /// row whose values it carries). A skipped cycle repeats the rows of the cycle before
     /// the skip, shifted by whole periods.
     pub fn rows(&self) -> Vec<(f64, usize)> {
+        self.filled_rows().into_iter().map(|r| (r.0, r.1)).collect()
+    }
+
+    /// [`Trace::rows`] with, for a row inside a skip, the skip's index and which of its
+    /// cycles (from 1) the row belongs to.
+    fn filled_rows(&self) -> Vec<FilledRow> {
         let mut out = Vec::with_capacity(self.time.len());
-        let mut skips = self.skips.iter().peekable();
+        let mut skips = self.skips.iter().enumerate().peekable();
         for (row, &t) in self.time.iter().enumerate() {
-            while let Some(skip) = skips.next_if(|s| s.at_s < t) {
-                self.repeat(skip, &mut out);
+            while let Some((index, skip)) = skips.next_if(|s| s.1.at_s < t) {
+                self.repeat(index, skip, &mut out);
             }
-            out.push((t, row));
+            out.push((t, row, None));
         }
-        for skip in skips {
-            self.repeat(skip, &mut out);
+        for (index, skip) in skips {
+            self.repeat(index, skip, &mut out);
         }
         out
     }
 
-    fn repeat(&self, skip: &Skip, out: &mut Vec<(f64, usize)>) {
+    fn repeat(&self, index: usize, skip: &Skip, out: &mut Vec<FilledRow>) {
         let from = self
             .time
             .partition_point(|&t| t <= skip.at_s - skip.period_s + 1e-12);
         let to = self.time.partition_point(|&t| t <= skip.at_s + 1e-12);
         for k in 1..=skip.cycles {
             let shift = k as f64 * skip.period_s;
-            out.extend((from..to).map(|row| (self.time[row] + shift, row)));
+            out.extend((from..to).map(|row| (self.time[row] + shift, row, Some((index, k)))));
         }
     }
 
-    /// A copy with the skipped cycles filled in (see [`Trace::rows`]) and no skips left.
+    /// Each column's change across a drifting skip: from the last row before it to the
+    /// first row one cycle after it (zero for a plain repeat, or when no row follows).
+    fn skip_drift(&self, skip: &Skip) -> Vec<f64> {
+        let before = self.time.partition_point(|&t| t <= skip.at_s + 1e-12);
+        let after_s = skip.at_s + (skip.cycles as f64 + 1.0) * skip.period_s - 1e-12;
+        let after = self.time.partition_point(|&t| t < after_s);
+        if !skip.drift || before == 0 || after >= self.time.len() {
+            return vec![0.0; self.columns.len()];
+        }
+        self.columns
+            .iter()
+            .map(|c| c[after] - c[before - 1])
+            .collect()
+    }
+
+    /// A copy with the skipped cycles filled in (see [`Trace::rows`]; a drifting skip's
+    /// cycles move in equal parts from the cycle before it toward the cycle after it) and
+    /// no skips left.
     pub fn expanded(&self) -> Trace {
         if self.skips.is_empty() {
             return self.clone();
         }
-        let rows = self.rows();
+        let drifts: Vec<Vec<f64>> = self.skips.iter().map(|s| self.skip_drift(s)).collect();
+        let rows = self.filled_rows();
+        let value = |column: usize, &(_, row, skip): &FilledRow| {
+            let v = self.columns[column][row];
+            match skip {
+                Some((index, k)) => {
+                    let share = k as f64 / (self.skips[index].cycles as f64 + 1.0);
+                    v + drifts[index][column] * share
+                }
+                None => v,
+            }
+        };
         Trace {
             probes: self.probes.clone(),
             time: rows.iter().map(|r| r.0).collect(),
-            columns: self
-                .columns
-                .iter()
-                .map(|c| rows.iter().map(|r| c[r.1]).collect())
+            columns: (0..self.columns.len())
+                .map(|c| rows.iter().map(|r| value(c, r)).collect())
                 .collect(),
             events: self.events.clone(),
             min_interval_s: self.min_interval_s,
@@ -261,18 +312,24 @@ impl Trace {
             .map(|i| self.columns[i].as_slice())
     }
 
-    /// Writes the trace as CSV: `time_s` then one column per probe. Skipped steady-state
-    /// cycles are written as the repeated cycle (see [`Trace::rows`]), so the file has no
-    /// hole.
+    /// Writes the trace as CSV: `time_s` then one column per probe. Skipped cycles are
+    /// written filled in (see [`Trace::expanded`]), so the file has no hole.
     pub fn write_csv<W: Write>(&self, circuit: &Circuit, mut out: W) -> io::Result<()> {
         write!(out, "time_s")?;
         for p in &self.probes {
             write!(out, ",{}", p.label(circuit))?;
         }
         writeln!(out)?;
-        for (t, row) in self.rows() {
+        let filled;
+        let trace = if self.skips.is_empty() {
+            self
+        } else {
+            filled = self.expanded();
+            &filled
+        };
+        for (row, t) in trace.time.iter().enumerate() {
             write!(out, "{t:.9e}")?;
-            for column in &self.columns {
+            for column in &trace.columns {
                 write!(out, ",{:.9e}", column[row])?;
             }
             writeln!(out)?;
@@ -315,5 +372,38 @@ mod tests {
         assert!(trace.time[0] <= last - 0.02);
         assert_eq!(trace.columns[0].len(), trace.time.len());
         assert_eq!(trace.columns[0][0], trace.time[0]);
+    }
+
+    #[test]
+    fn a_jump_is_filled_in_equal_parts_between_the_cycles_around_it() {
+        // A value that rises by 1 per cycle, recorded for one cycle (t = 0..1), then jumped
+        // for 3 cycles and recorded again for the cycle after the jump (t = 4..5, value
+        // 4..5): the jumped cycles carry 1..2, 2..3 and 3..4.
+        let mut trace = Trace::new(vec![Probe::Voltage { node: 1 }]);
+        for k in 0..=4 {
+            let t = f64::from(k) * 0.25;
+            trace.time.push(t);
+            trace.columns[0].push(t);
+        }
+        trace.note_jump(1.0, 1.0, 3);
+        for k in 1..=4 {
+            let t = 4.0 + f64::from(k) * 0.25;
+            trace.time.push(t);
+            trace.columns[0].push(t);
+        }
+        let full = trace.expanded();
+        for (t, v) in full.time.iter().zip(&full.columns[0]) {
+            assert!((t - v).abs() < 1e-12, "at {t}: {v}");
+        }
+        // A plain skip repeats the cycle instead.
+        let mut repeat = trace.clone();
+        repeat.skips[0].drift = false;
+        let filled = repeat.expanded();
+        let at_2_5 = filled
+            .time
+            .iter()
+            .position(|&t| (t - 2.5).abs() < 1e-9)
+            .unwrap();
+        assert!((filled.columns[0][at_2_5] - 0.5).abs() < 1e-12);
     }
 }

@@ -17,6 +17,7 @@ use crate::circuit::Circuit;
 use crate::devices::{Device, Method, Mna, Mode, SolveContext};
 use crate::waveform::Waveform;
 
+mod envelope;
 mod error;
 mod events;
 mod locate;
@@ -24,6 +25,7 @@ mod newton;
 mod settings;
 mod simulator;
 mod step;
+pub use envelope::{CycleSummary, EnvelopeFollower, EnvelopeSettings, EnvelopeStats, Jump};
 pub use error::*;
 pub use events::*;
 pub use settings::*;

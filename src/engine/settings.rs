@@ -110,4 +110,11 @@ pub struct RunStats {
     pub restarts: u64,
     /// Discrete state changes located in time.
     pub located_events: u64,
+    /// Envelope steps taken (see [`crate::engine::EnvelopeFollower`]).
+    pub envelope_steps: u64,
+    /// Whole mains cycles those steps jumped over (their time is in `skipped_s` too).
+    pub cycles_jumped: u64,
+    /// Cycles simulated for envelope following's own use: the monodromy matrices'
+    /// columns and the checking cycle of every step tried (accepted or not).
+    pub envelope_cycles: u64,
 }

@@ -4,7 +4,8 @@
 
 use crate::circuit::{Circuit, PartSpec};
 use crate::engine::{
-    DiscreteEvent, Network, Observer, RunStats, Settings, SimError, SimState, Simulator, Start,
+    DiscreteEvent, EnvelopeFollower, EnvelopeSettings, Network, Observer, RunStats, Settings,
+    SimError, SimState, Simulator, Start,
 };
 use crate::measure::{load_path_openings, measure, minimum_after, toggles, Measurements, Window};
 use crate::probe::{Probe, Trace};
@@ -185,8 +186,13 @@ pub struct EventOptions {
     /// Cycles recorded before the onset. Default 2.
     pub pre_cycles: usize,
     /// Skip whole cycles of a long constant stretch of an event once the circuit repeats
-    /// itself cycle after cycle within a fiftieth of `settle_tolerance`. Default on.
+    /// itself cycle after cycle within a fiftieth of `settle_tolerance`, and follow the
+    /// envelope of a slow drift (power-up, reconnection delay) in steps of many cycles
+    /// ([`crate::engine::EnvelopeFollower`]). Off, every cycle is stepped in full.
+    /// Default on.
     pub skip_steady: bool,
+    /// Tolerances of envelope following.
+    pub envelope: EnvelopeSettings,
     /// Engine settings.
     pub settings: Settings,
     /// Extra probes to record (besides mains, rail and comparator outputs).
@@ -206,6 +212,7 @@ impl Default for EventOptions {
             restore_limit_s: None,
             pre_cycles: 2,
             skip_steady: true,
+            envelope: EnvelopeSettings::default(),
             settings: Settings::default(),
             probes: Vec::new(),
         }

@@ -141,16 +141,25 @@ impl EventReport<'_> {
         for (comparator, n) in &result.comparator_toggles {
             say!(out, "  {comparator:<22}  {n} output toggles");
         }
+        let s = &result.stats;
+        let skipped = if s.cycles_jumped > 0 || s.skipped_s > 0.0 {
+            format!(
+                " ({:.3} s skipped: {} envelope steps over {} cycles, {} cycles simulated to take them)",
+                s.skipped_s, s.envelope_steps, s.cycles_jumped, s.envelope_cycles
+            )
+        } else {
+            String::new()
+        };
         say!(
             out,
-            "\nrun ended at {:.3} s ({}); {} steps, {:.3} s wall",
+            "\nrun ended at {:.3} s ({}); {} steps{skipped}, {:.3} s wall",
             result.run_end_s,
             if result.settled_after {
                 "restored and settled"
             } else {
                 "limit reached before the protector restored and settled"
             },
-            result.stats.accepted_steps,
+            s.accepted_steps,
             self.wall_s
         );
         if let Some(file) = self.trace_file {

@@ -9,7 +9,10 @@ pub(crate) fn periodic(a: &[f64], b: &[f64], nodes: usize, tolerance: f64) -> bo
 
 /// Advances cycle by cycle until `done` holds for the state and the last `quiet` cycles
 /// were periodic and free of discrete changes, or `limit_s` is reached. Returns whether it
-/// settled.
+/// settled. With `options.skip_steady`, a slow drift between calm cycles is followed in
+/// envelope steps of many cycles (see [`EnvelopeFollower`]); once `done` holds, a step
+/// stops short of the cycle where the drift is predicted to fall within the settling
+/// tolerance, so that settling is judged on cycles stepped in full.
 #[allow(clippy::too_many_arguments)]
 pub(crate) fn run_until_settled(
     sim: &mut Simulator,
@@ -25,24 +28,55 @@ pub(crate) fn run_until_settled(
     let mut previous = state.solution().to_vec();
     let mut quiet = 0;
     let mut boundary = first_boundary;
+    let mut follower = options
+        .skip_steady
+        .then(|| EnvelopeFollower::new(sim, period, options.envelope.clone()));
+    // The end of an envelope step's checking cycle, taken instead of stepping that cycle
+    // again when no trace records it.
+    let mut checked = None;
     while boundary <= limit_s + 1e-12 {
-        let mut watch = Watch {
-            events: 0,
-            trace: trace.as_deref_mut(),
+        let summary = if let Some((end, summary)) = checked.take() {
+            *state = end;
+            summary
+        } else {
+            let mut watch = Watch {
+                events: 0,
+                trace: trace.as_deref_mut(),
+            };
+            sim.advance_cycle(state, boundary, &mut watch)?
         };
-        sim.advance(state, boundary, &mut watch)?;
         let now = state.solution();
-        let calm = watch.events == 0 && state.pending().is_empty();
+        let calm = summary.events == 0 && state.pending().is_empty();
         if calm && periodic(&previous, now, nodes, options.settle_tolerance) {
             quiet += 1;
         } else {
             quiet = 0;
         }
         previous.copy_from_slice(now);
-        if quiet >= options.settle_cycles && done(sim, state) {
+        let finished = done(sim, state);
+        if quiet >= options.settle_cycles && finished {
             return Ok(true);
         }
         boundary += period;
+        let Some(follower) = follower.as_mut() else {
+            continue;
+        };
+        follower.observe(state, &summary);
+        let settle_below = finished.then_some(options.settle_tolerance);
+        if let Some(jump) = follower.try_step(sim, state, limit_s, settle_below)? {
+            *state = jump.state;
+            previous.copy_from_slice(state.solution());
+            quiet = 0;
+            boundary += jump.cycles as f64 * period;
+            match trace.as_deref_mut() {
+                Some(t) => t.note_jump(
+                    state.time - jump.cycles as f64 * period,
+                    period,
+                    jump.cycles,
+                ),
+                None => checked = Some((jump.end, jump.summary)),
+            }
+        }
     }
     Ok(false)
 }
