@@ -361,8 +361,11 @@ impl EnvelopeFollower {
     /// discrete change, or ending with a change pending, breaks the calm: the modes may
     /// differ, so the monodromy matrix is found afresh.
     pub fn observe(&mut self, state: &SimState, summary: &CycleSummary) {
+        // A cycle taken from an envelope step's check was counted with the step's work.
         let steps = state.stats.accepted_steps;
-        self.cycle_steps = steps.saturating_sub(self.steps_seen);
+        if steps > self.steps_seen {
+            self.cycle_steps = steps - self.steps_seen;
+        }
         self.steps_seen = steps;
         if summary.events > 0 || !state.pending.is_empty() {
             self.calm.clear();
@@ -468,6 +471,7 @@ impl EnvelopeFollower {
             // The matrix is judged on the next pair of calm cycles.
             state.stats = before;
             add_work(&mut state.stats, &work);
+            self.steps_seen = state.stats.accepted_steps;
             return Ok(None);
         }
         if self.model_error > 0.0 {
@@ -529,6 +533,8 @@ impl EnvelopeFollower {
                 }
             }
         }
+        // The next ordinary cycle's steps are counted from here, not with this work.
+        self.steps_seen = before.accepted_steps + work.accepted_steps;
         match outcome.as_mut() {
             Some(jump) => {
                 for target in [&mut jump.state, &mut jump.end] {
