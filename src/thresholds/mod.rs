@@ -185,13 +185,22 @@ fn profile(steps: Vec<Step>) -> Profile {
 
 struct Tester<'a> {
     settled: &'a Settled,
+    /// The settled protector with a short run after each event: a trip or reset test
+    /// only asks what happened while its levels were held, not when the protector
+    /// reconnects afterwards (which, behind a minutes-long restart delay, would cost every
+    /// test minutes of simulated time).
+    quick: Settled,
     circuit: &'a Circuit,
     hold_s: f64,
 }
 
+/// The run after a trip or reset test's levels, seconds: enough for an opening in progress
+/// at the event's end to complete (a relay's release and contact travel take milliseconds).
+const TEST_TAIL_S: f64 = 0.2;
+
 impl Tester<'_> {
     fn run(&self, steps: Vec<Step>) -> Result<EventRun, ScenarioError> {
-        self.settled.run(self.circuit, &profile(steps))
+        self.quick.run(self.circuit, &profile(steps))
     }
 
     /// Does holding `level` disconnect the load?
@@ -356,8 +365,11 @@ pub fn find(
     circuit: &Circuit,
     options: &ThresholdOptions,
 ) -> Result<StaticThresholds, ScenarioError> {
+    let mut quick = settled.clone();
+    quick.restore_limit_s = quick.restore_limit_s.min(TEST_TAIL_S);
     let tester = Tester {
         settled,
+        quick,
         circuit,
         hold_s: options.hold_s,
     };
