@@ -230,23 +230,6 @@ impl Default for EnvelopeSettings {
     }
 }
 
-/// Counters of envelope following.
-#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize)]
-pub struct EnvelopeStats {
-    /// Envelope steps taken.
-    pub steps: u64,
-    /// Envelope steps tried and refused (too inexact, or a discrete change or a region
-    /// change in the checking cycle).
-    pub rejected: u64,
-    /// Whole cycles jumped over.
-    pub cycles_jumped: u64,
-    /// Cycles simulated for the envelope's own use: finite-difference columns of the
-    /// monodromy matrix and checking cycles.
-    pub cycles_simulated: u64,
-    /// Monodromy matrices found by finite differences.
-    pub monodromy_matrices: u64,
-}
-
 /// One boundary of a calm cycle: its time, continuous state and crossing maxima.
 #[derive(Clone, Debug)]
 struct Boundary {
@@ -303,8 +286,6 @@ pub struct EnvelopeFollower {
     wait: usize,
     /// The wait after the next try that finds no step (doubles each time, up to 64).
     backoff: usize,
-    /// Counters since the follower was made.
-    pub stats: EnvelopeStats,
 }
 
 /// Newton-free check of one tried step.
@@ -346,7 +327,6 @@ impl EnvelopeFollower {
             steps_seen: 0,
             wait: 0,
             backoff: 1,
-            stats: EnvelopeStats::default(),
         }
     }
 
@@ -493,8 +473,6 @@ impl EnvelopeFollower {
                     summary,
                     error,
                 } => {
-                    self.stats.steps += 1;
-                    self.stats.cycles_jumped += cycles as u64;
                     self.backoff = 1;
                     let grow = (0.9 / error.max(1e-6).sqrt()).clamp(0.5, 2.0);
                     self.proposal = (cycles as f64 * grow).max(self.settings.min_cycles as f64);
@@ -513,19 +491,15 @@ impl EnvelopeFollower {
                     break;
                 }
                 Attempt::Inexact(error) => {
-                    self.stats.rejected += 1;
-
                     let shrink = (0.9 / error.sqrt()).clamp(0.1, 0.7);
                     cycles = (cycles as f64 * shrink).floor() as usize;
                     self.proposal = cycles as f64;
                 }
                 Attempt::Costly => {
-                    self.stats.rejected += 1;
                     self.backoff = MAX_WAIT;
                     break;
                 }
                 Attempt::Changed => {
-                    self.stats.rejected += 1;
                     let at = state.time + (cycles + 1) as f64 * self.period;
                     self.change_before_s = self.change_before_s.min(at);
                     cycles /= 2;
@@ -633,22 +607,15 @@ impl EnvelopeFollower {
                 j[(r, i)] = (column[r] - base[r]) / delta;
             }
         }
-        self.stats.cycles_simulated += n as u64 + 2;
         work.envelope_cycles += n as u64 + 2;
-        self.stats.monodromy_matrices += 1;
         self.lasting = (0..n)
             .map(|i| 1.0 / (1.0 - j[(i, i)].abs().min(1.0 - 1e-9)) - 1.0)
             .collect();
         self.jacobian = Some(j);
-        self.broyden_from_calm();
-        Ok(())
-    }
-
-    /// Applies the Broyden correction from the calm cycles already seen.
-    fn broyden_from_calm(&mut self) {
         if self.calm.len() == 3 {
             self.broyden();
         }
+        Ok(())
     }
 
     /// One ordinary cycle from `state` moved `cycles` cycles on with its continuous state
@@ -666,7 +633,6 @@ impl EnvelopeFollower {
         let mut end = start.clone();
         let summary = sim.advance_cycle(&mut end, start.time + self.period, &mut ())?;
         add_difference(work, &end.stats, &state.stats);
-        self.stats.cycles_simulated += 1;
         work.envelope_cycles += 1;
         Ok((self.vector(&end), summary, start, end))
     }

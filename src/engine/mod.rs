@@ -25,7 +25,7 @@ mod newton;
 mod settings;
 mod simulator;
 mod step;
-pub use envelope::{CycleSummary, EnvelopeFollower, EnvelopeSettings, EnvelopeStats, Jump};
+pub use envelope::{CycleSummary, EnvelopeFollower, EnvelopeSettings, Jump};
 pub use error::*;
 pub use events::*;
 pub use settings::*;
